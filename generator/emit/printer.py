@@ -1,0 +1,106 @@
+"""Print expression trees (`generator.ir`) as source text, with per-target differences in tables.
+
+Numbers are printed with sympy's code printers (`PythonCodePrinter`, `C99CodePrinter`), which
+know each language's literal syntax; the sum-of-products layout is printed here, because a sympy
+`Add` of thousands of terms costs seconds to build and print while these trees print in
+milliseconds.  Long sums are wrapped at term boundaries so formulas stay readable in a diff.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from fractions import Fraction
+
+from ..ir import Call, Div, Num, Prod, Sum, Var
+
+WIDTH = 96
+
+
+@dataclass(frozen=True)
+class Syntax:
+    """What differs between targets when printing an expression."""
+
+    number: object                          # Fraction -> str
+    functions: dict = field(default_factory=dict)   # tree function name -> target spelling
+    needs: dict = field(default_factory=dict)       # tree function name -> import/include it needs
+
+
+def python_number(value: Fraction) -> str:
+    from sympy import Rational
+    from sympy.printing.pycode import PythonCodePrinter
+    if value.denominator == 1:
+        return str(value.numerator)
+    if value.denominator & (value.denominator - 1) == 0:      # exact in binary: a float literal
+        return repr(value.numerator / value.denominator)
+    return "(" + PythonCodePrinter().doprint(Rational(value.numerator, value.denominator)) + ")"
+
+
+def c_number(real: str):
+    """Number literals cast to the header's scalar type, so float builds stay in float."""
+    def number(value: Fraction) -> str:
+        from sympy import Rational
+        from sympy.printing.c import C99CodePrinter
+        if value.denominator == 1:
+            text = f"{value.numerator}.0"
+        elif value.denominator & (value.denominator - 1) == 0:
+            text = repr(value.numerator / value.denominator)
+        else:
+            text = "(" + C99CodePrinter().doprint(Rational(value.numerator, value.denominator)) + ")"
+        return f"(({real}){text})"
+    return number
+
+
+class Printer:
+    """Prints nodes for one target; records the functions it used in `used`."""
+
+    def __init__(self, syntax: Syntax):
+        self.syntax = syntax
+        self.used: set[str] = set()
+
+    def expr(self, node, prec: int = 0) -> str:
+        if isinstance(node, Var):
+            return node.name
+        if isinstance(node, Num):
+            text = self.syntax.number(abs(node.value))
+            return f"-{text}" if node.value < 0 and prec == 0 else (
+                f"(-{text})" if node.value < 0 else text)
+        if isinstance(node, Prod):
+            text = "*".join(self.expr(f, 2) for f in node.factors)
+            return f"({text})" if prec > 2 else text
+        if isinstance(node, Sum):
+            text = self._sum(node)
+            return f"({text})" if prec > 1 else text
+        if isinstance(node, Div):
+            text = f"{self.expr(node.num, 2)}/{self.expr(node.den, 3)}"
+            return f"({text})" if prec > 2 else text
+        if isinstance(node, Call):
+            self.used.add(node.fn)
+            name = self.syntax.functions.get(node.fn, node.fn)
+            return f"{name}({', '.join(self.expr(a) for a in node.args)})"
+        raise TypeError(f"cannot print {node!r}")
+
+    def _sum(self, node: Sum) -> str:
+        parts = []
+        for i, (sign, term) in enumerate(node.terms):
+            body = self.expr(term, 2)
+            if i == 0:
+                parts.append(f"-{body}" if sign < 0 else body)
+            else:
+                parts.append(f" - {body}" if sign < 0 else f" + {body}")
+        return "".join(parts)
+
+    def wrapped(self, node, indent: str) -> str:
+        """The expression, broken at top-level term boundaries when longer than WIDTH."""
+        if not isinstance(node, Sum):
+            return self.expr(node)
+        lines, line = [], ""
+        for i, (sign, term) in enumerate(node.terms):
+            body = self.expr(term, 2)
+            piece = (f"-{body}" if sign < 0 else body) if i == 0 else (
+                f" - {body}" if sign < 0 else f" + {body}")
+            if line and len(indent) + len(line) + len(piece) > WIDTH:
+                lines.append(line)
+                line = piece.lstrip()
+            else:
+                line += piece
+        lines.append(line)
+        return ("\n" + indent).join(lines)

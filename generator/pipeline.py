@@ -1,0 +1,60 @@
+"""Run the stages for one spec: load -> model -> derive -> optimize -> emit -> manifest -> write.
+
+Everything is derived and rendered in memory first; files are written only when every kernel of
+every target succeeded, so a failing spec never leaves partial output.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+from . import derive, manifest, model, spec as spec_mod
+from .emit import emitter
+from .files import display_path, output_dir, write_files
+from .ir import Module
+from .optimize import optimize
+
+
+@dataclass(frozen=True)
+class Build:
+    spec: spec_mod.Spec
+    module: Module
+    out_dir: Path
+    files: dict            # file name -> text, manifest included
+
+    @property
+    def manifest_name(self) -> str:
+        return f"{self.module.name}.manifest.json"
+
+
+def derive_module(spec: spec_mod.Spec) -> Module:
+    m = model.build(spec)
+    kernels, extra = [], {}
+    for ks in spec.kernels:
+        kernel, new_type = derive.derive(m, ks, extra)
+        if new_type is not None:
+            extra[new_type.name] = new_type
+        kernels.append(replace(kernel, program=optimize(kernel)))
+    types = tuple(m.types.values()) + tuple(extra.values())
+    return Module(name=spec.name, spec_path=display_path(spec.path), spec_digest=spec.digest,
+                  basis=spec.basis, metric=spec.metric, types=types, kernels=tuple(kernels),
+                  targets=spec.targets, preferred=spec.blade_names)
+
+
+def render(module: Module) -> dict[str, str]:
+    files: dict[str, str] = {}
+    for target, options in module.targets.items():
+        files.update(emitter(target, options).files(module))
+    files[f"{module.name}.manifest.json"] = manifest.build(module, files)
+    return files
+
+
+def build(path: str | Path, cli_out: str | None = None, display: str | None = None) -> Build:
+    spec = spec_mod.load(path, display)
+    out = output_dir(spec, cli_out)
+    module = derive_module(spec)
+    return Build(spec, module, out, render(module))
+
+
+def write(b: Build) -> list[tuple[str, str]]:
+    return write_files(b.out_dir, b.files)

@@ -1,0 +1,124 @@
+"""Compare emitted kernels with the dense reference on seeded random inputs.
+
+For every kernel and every emitted target, random inputs are fed to the emitted code (imported or
+compiled from the output directory, so what is checked is what ships) and to
+`reference.Reference`, which knows nothing of the derivation: it builds each input blade as the
+outer product of its factors in the order of the blade's name.  Besides the result components,
+the reference's value outside the result type must vanish, which shows that pruning dropped only
+zeros.  Target runners are registered in `RUNNERS`.
+"""
+from __future__ import annotations
+
+import importlib.util
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .ir import Kernel, Module, TypeDef
+from .reference import Reference
+
+SAMPLES = 64
+SEED = 20261202
+
+
+@dataclass(frozen=True)
+class Row:
+    kernel: str
+    target: str
+    samples: int
+    max_error: float
+    tolerance: float
+    note: str = ""
+
+    @property
+    def ok(self) -> bool:
+        return bool(self.max_error <= self.tolerance)
+
+
+def load_python(path: Path, tag: str):
+    """Import an emitted Python file under a unique module name."""
+    name = f"_bladesmith_{tag}_{abs(hash(str(path.resolve())))}"
+    spec = importlib.util.spec_from_file_location(name, path)
+    module = importlib.util.module_from_spec(spec)
+    sys.modules[name] = module
+    spec.loader.exec_module(module)
+    return module
+
+
+def run_python(module: Module, out_dir: Path):
+    emitted = load_python(out_dir / f"{module.name}.py", "py")
+
+    def run(kernel: Kernel, inputs: list[np.ndarray]) -> np.ndarray:
+        fn = getattr(emitted, kernel.name)
+        n = inputs[0].shape[0]
+        cols = fn(*(x.T for x in inputs))
+        return np.stack([np.broadcast_to(np.asarray(c, dtype=float), (n,)) for c in cols], axis=1)
+    return [("python", run, 1e-10)]
+
+
+RUNNERS = {"python": run_python}
+
+
+class Oracle:
+    """The reference evaluated on inputs given as component arrays of declared types."""
+
+    def __init__(self, module: Module):
+        self.module = module
+        self.ref = Reference([list(row) for row in module.metric])
+        self._basis: dict[str, tuple[np.ndarray, np.ndarray]] = {}
+
+    def basis(self, t: TypeDef) -> tuple[np.ndarray, np.ndarray]:
+        """(k x 2^n matrix of the type's blades, bitmaps)."""
+        if t.name not in self._basis:
+            rows = np.array([self.ref.blade(c.factors) for c in t.components], dtype=float)
+            self._basis[t.name] = (rows, np.array(t.bitmaps))
+        return self._basis[t.name]
+
+    def evaluate(self, kernel: Kernel, inputs: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+        """(expected result components (N, k), largest reference value outside the result)."""
+        types = [self.module.type(t) for t in kernel.args]
+        dense = [x @ self.basis(t)[0] for x, t in zip(inputs, types)]
+        rows, bitmaps = self.basis(self.module.type(kernel.result))
+        out = np.empty((inputs[0].shape[0], len(bitmaps)))
+        outside = np.zeros(inputs[0].shape[0])
+        mask = np.ones(self.ref.size, dtype=bool)
+        mask[bitmaps] = False
+        for i in range(out.shape[0]):
+            y = self.ref.apply(kernel.op, *(d[i] for d in dense))
+            if kernel.grades is not None:
+                y = self.ref.project(y, list(kernel.grades))
+            y = np.asarray(y, dtype=float)
+            out[i] = y[bitmaps] / rows[np.arange(len(bitmaps)), bitmaps]
+            outside[i] = np.max(np.abs(y[mask]), initial=0.0)
+        return out, outside
+
+
+def random_inputs(module: Module, kernel: Kernel, samples: int, seed: int) -> list[np.ndarray]:
+    rng = np.random.default_rng([seed, len(kernel.name)] + [ord(ch) for ch in kernel.name])
+    return [rng.uniform(-1.0, 1.0, (samples, len(module.type(t).components))) for t in kernel.args]
+
+
+def verify(module: Module, out_dir: Path, samples: int = SAMPLES, seed: int = SEED) -> list[Row]:
+    oracle = Oracle(module)
+    runners = []
+    for target in module.targets:
+        if target in RUNNERS:
+            runners.extend(RUNNERS[target](module, out_dir))
+    rows = []
+    for kernel in module.kernels:
+        inputs = random_inputs(module, kernel, samples, seed)
+        expected, outside = oracle.evaluate(kernel, inputs)
+        scale = 1.0 + float(np.max(np.abs(expected), initial=0.0))
+        for target, run, rel in runners:
+            got = np.asarray(run(kernel, [x.copy() for x in inputs]), dtype=float)
+            err = float(np.max(np.abs(got - expected), initial=0.0))
+            err = max(err, float(np.max(outside, initial=0.0)))
+            note = "" if err <= rel * scale * _terms(kernel) else "mismatch"
+            rows.append(Row(kernel.name, target, samples, err, rel * scale * _terms(kernel), note))
+    return rows
+
+
+def _terms(kernel: Kernel) -> int:
+    return max([len(f.terms) for f in kernel.formulas] + [1])
