@@ -12,6 +12,7 @@ DESIGN section 4 says.
 """
 from __future__ import annotations
 
+from dataclasses import replace
 from fractions import Fraction
 
 from .algebra import Algebra, canonical_key, popcount
@@ -47,7 +48,7 @@ def _add_into(acc: Poly, poly: Poly, scale: Fraction) -> None:
             acc.pop(m, None)
 
 
-def _poly_mul(p: Poly, q: Poly) -> Poly:
+def poly_mul(p: Poly, q: Poly) -> Poly:
     out: Poly = {}
     for m1, c1 in p.items():
         for m2, c2 in q.items():
@@ -66,6 +67,13 @@ class PairStats:
     def __init__(self):
         self.pairs = self.grade_rule = self.metric_zero = 0
 
+    def count(self, nonzero: bool, kept: bool, grade_ok: bool) -> None:
+        self.pairs += 1
+        if not kept and (nonzero or not grade_ok):
+            self.grade_rule += 1
+        elif not nonzero:
+            self.metric_zero += 1
+
 
 def bilinear(alg: Algebra, keep, A: MV, B: MV, stats: PairStats | None = None) -> MV:
     """sum over blade pairs (a, b) of A_a B_b * (grade-filtered e_a e_b)."""
@@ -76,11 +84,9 @@ def bilinear(alg: Algebra, keep, A: MV, B: MV, stats: PairStats | None = None) -
             terms = alg.product(a, b)
             kept = [(c, coef) for c, coef in terms if keep(r, popcount(b), popcount(c))]
             if stats is not None:
-                stats.pairs += 1
-                stats.metric_zero += not terms
-                stats.grade_rule += bool(terms) and not kept
+                stats.count(bool(terms), bool(kept), keep(r, popcount(b), popcount(a ^ b)))
             if kept:
-                prod = _poly_mul(pa, pb)
+                prod = poly_mul(pa, pb)
                 for c, coef in kept:
                     _add_into(out.setdefault(c, {}), prod, coef)
     return out
@@ -105,16 +111,39 @@ def grade_sign(op: Operation, A: MV) -> MV:
     return {k: {m: c * op.sign(popcount(k)) for m, c in p.items()} for k, p in A.items()}
 
 
+def _geometric(alg: Algebra, A: MV, B: MV, stats=None) -> MV:
+    return bilinear(alg, CATALOGUE["geometric"].keep, A, B, stats)
+
+
+def _outer(alg: Algebra, A: MV, B: MV, stats=None) -> MV:
+    return bilinear(alg, CATALOGUE["outer"].keep, A, B, stats)
+
+
+def _rules() -> dict:
+    """kind -> rule(alg, op, mvs, stats) returning the result multivector."""
+    from . import duality as d
+    from . import versor as v
+    return {
+        "bilinear": lambda alg, op, m, st: bilinear(alg, op.keep, m[0], m[1], st),
+        "commutator": lambda alg, op, m, st: commutator(alg, m[0], m[1], st),
+        "linear": lambda alg, op, m, st: linear(m[0], m[1], Fraction(op.linear_sign)),
+        "grade_sign": lambda alg, op, m, st: grade_sign(op, m[0]),
+        "complement": lambda alg, op, m, st: d.complement(alg, m[0]),
+        "uncomplement": lambda alg, op, m, st: d.uncomplement(alg, m[0]),
+        "regressive": lambda alg, op, m, st: d.uncomplement(
+            alg, _outer(alg, d.complement(alg, m[0]), d.complement(alg, m[1]), st)),
+        "dual": lambda alg, op, m, st: _geometric(alg, m[0], d.dual_factor(alg), st),
+        "undual": lambda alg, op, m, st: _geometric(alg, m[0], d.undual_factor(alg), st),
+        "sandwich": lambda alg, op, m, st: v.sandwich(alg, m[0], m[1], st),
+        "norm_squared": lambda alg, op, m, st: v.norm_squared(alg, m[0], st),
+    }
+
+
 def apply(alg: Algebra, op: Operation, mvs: list[MV], stats: PairStats | None = None) -> MV:
-    if op.kind == "bilinear":
-        return bilinear(alg, op.keep, mvs[0], mvs[1], stats)
-    if op.kind == "commutator":
-        return commutator(alg, mvs[0], mvs[1], stats)
-    if op.kind == "linear":
-        return linear(mvs[0], mvs[1], Fraction(op.linear_sign))
-    if op.kind == "grade_sign":
-        return grade_sign(op, mvs[0])
-    raise AssertionError(f"no derivation rule for kind {op.kind!r}")
+    rules = _rules()
+    if op.kind not in rules:
+        raise AssertionError(f"no derivation rule for kind {op.kind!r}")
+    return rules[op.kind](alg, op, mvs, stats)
 
 
 def prune(mv: MV, grades: tuple[int, ...] | None) -> MV:
@@ -122,31 +151,38 @@ def prune(mv: MV, grades: tuple[int, ...] | None) -> MV:
     return {k: p for k, p in mv.items() if p and (grades is None or popcount(k) in grades)}
 
 
-def derive(model: Model, ks: KernelSpec, extra_types: dict) -> tuple[Kernel, TypeDef | None]:
-    """The kernel for one spec entry; also returns a newly inferred result type, if any."""
+def derive(model: Model, ks: KernelSpec, extra_types: dict) -> tuple[Kernel, tuple[TypeDef, ...]]:
+    """The kernel for one spec entry, and the result types it inferred (if any)."""
+    from . import versor
     alg, op = model.algebra, CATALOGUE[ks.op]
     arg_names = ("a", "b")[:op.arity]
     arg_types = [model.types[t] for t in ks.args]
     variables = Variables(list(zip(arg_names, arg_types)))
+    fields = tuple(tuple(c.ident for c in t.components) for t in arg_types)
+    if op.kind in versor.SPECIAL:
+        kernel, new_types = versor.SPECIAL[op.kind](model, ks, op, variables, extra_types)
+        return replace(kernel, arg_fields=fields), tuple(t for t in new_types if t is not None)
     stats = PairStats()
     mv = prune(apply(alg, op, variables.mvs, stats), ks.grades)
     if not mv:
         raise model.spec.error(ks.key, zero_message(ks, op, stats))
     result, new_type = match_result(model, ks, mv, extra_types)
-    formulas = tuple(_formula(c, mv.get(c.bitmap, {}), variables) for c in result.components)
+    formulas = tuple(formula(c, mv.get(c.bitmap, {}), variables) for c in result.components)
     kernel = Kernel(name=ks.name, op=ks.op, args=tuple(ks.args), result=result.name,
                     formulas=formulas, arg_names=arg_names, summary=op.formula,
-                    grades=ks.grades)
-    return kernel, new_type
+                    grades=ks.grades, arg_fields=fields)
+    return kernel, (new_type,) if new_type is not None else ()
 
 
-def _formula(comp, poly: Poly, variables: Variables) -> Formula:
+def formula(comp, poly: Poly, variables: Variables) -> Formula:
     terms = tuple(Term(coef * comp.sign, tuple(variables.factors[i] for i in m))
                   for m, coef in sorted(poly.items()))
     return Formula(comp.ident, terms)
 
 
-def match_result(model: Model, ks: KernelSpec, mv: MV, extra: dict) -> tuple[TypeDef, TypeDef | None]:
+def match_result(model: Model, ks: KernelSpec, mv, extra: dict,
+                 name: str | None = None) -> tuple[TypeDef, TypeDef | None]:
+    """The declared type for the blades of `mv` (a multivector or a set of bitmaps), or a new one."""
     blades = set(mv)
     if ks.result is not None:
         t = model.types[ks.result]
@@ -160,7 +196,7 @@ def match_result(model: Model, ks: KernelSpec, mv: MV, extra: dict) -> tuple[Typ
     for t in list(model.types.values()) + list(extra.values()):
         if set(t.bitmaps) == blades:
             return t, None
-    name = f"{ks.name}_result"
+    name = name or f"{ks.name}_result"
     if name in model.types:
         raise model.spec.error(ks.key, f"the inferred result type {name!r} clashes with a declared "
                                        "type; set 'result' explicitly")

@@ -62,6 +62,7 @@ class Formula:
 
     comp: str                   # output component identifier
     terms: tuple[Term, ...]     # empty tuple: structurally zero (a padded result component)
+    text: str | None = None     # canonical text of a non-polynomial formula (inverse, exp)
 
 
 # --- expression tree printed by the targets -------------------------------------------------
@@ -155,6 +156,9 @@ class Kernel:
     summary: str = ""
     grades: tuple[int, ...] | None = None
     program: Program | None = None
+    arg_fields: tuple = ()              # component identifiers of each argument type
+    rows: str | None = None             # sandwich_matrix: the type of the transformed element
+    one_to_many: Program | None = None  # sandwich: temps depend on `a` only (hoistable), then outputs
 
 
 @dataclass(frozen=True)

@@ -18,6 +18,8 @@ def coef_text(c: Fraction) -> str:
 
 
 def formula_text(fm: Formula) -> str:
+    if fm.text is not None:
+        return fm.text
     if not fm.terms:
         return "0"
     out = []

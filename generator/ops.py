@@ -21,6 +21,7 @@ class Operation:
     keep: Callable[[int, int, int], bool] | None = None     # bilinear grade rule (r, s, g)
     sign: Callable[[int], int] | None = None                # grade_sign rule
     linear_sign: int = 1                                    # linear: +1 add, -1 sub
+    nondegenerate: bool = False                             # needs an invertible metric
 
 
 def _row(name, arity, kind, formula, **kw) -> tuple[str, Operation]:
@@ -49,6 +50,17 @@ CATALOGUE: dict[str, Operation] = dict([
          sign=lambda k: -1 if k % 2 else 1),
     _row("conjugate", 1, "grade_sign", "Clifford conjugate: grade k scaled by (-1)^(k(k+1)/2)",
          sign=lambda k: -1 if (k * (k + 1) // 2) % 2 else 1),
+    _row("sandwich", 2, "sandwich", "a b ~a (no normalization)"),
+    _row("sandwich_matrix", 2, "sandwich_matrix",
+         "matrix M(a) of x -> a x ~a, row-major: out[r] = sum_c M[r][c] x[c]"),
+    _row("complement", 1, "complement", "right complement: e_A ^ comp(e_A) = I (metric-free)"),
+    _row("uncomplement", 1, "uncomplement", "left complement: the inverse map of complement"),
+    _row("regressive", 2, "regressive", "a v b = uncomp(comp(a) ^ comp(b)) (metric-free)"),
+    _row("dual", 1, "dual", "a I^-1 (non-degenerate metrics only)", nondegenerate=True),
+    _row("undual", 1, "undual", "a I (non-degenerate metrics only)", nondegenerate=True),
+    _row("norm_squared", 1, "norm_squared", "<a ~a>_0"),
+    _row("inverse", 1, "inverse", "~a (a ~a)^-1, for types whose a ~a is a scalar (plus a null pseudoscalar)"),
+    _row("exp", 1, "exp", "exp(a) in closed form, for a whose square is a scalar (plus a null pseudoscalar)"),
 ])
 
 

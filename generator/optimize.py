@@ -9,6 +9,7 @@ so common-subexpression elimination is not run for it; the manifest lists what w
 """
 from __future__ import annotations
 
+from dataclasses import replace
 from fractions import Fraction
 
 from .ir import Assignment, Call, Counts, Div, Formula, Kernel, Num, Prod, Program, Sum, Var
@@ -95,3 +96,195 @@ def optimize(kernel: Kernel) -> Program:
     applied = ("group-coefficients",) if chosen == "grouped" else ()
     return Program(temps=(), outputs=tuple(outputs), counts=total, form=chosen,
                    forms=tuple(per_form.items()), applied=applied)
+
+
+# --- shared products, sympy CSE, the sandwich's two forms ---------------------------------
+
+def inline(node, env: dict):
+    """The tree with temporaries (Var names in env) replaced by their expressions."""
+    if isinstance(node, Var):
+        return inline(env[node.name], env) if node.name in env else node
+    if isinstance(node, Prod):
+        return Prod(tuple(inline(f, env) for f in node.factors))
+    if isinstance(node, Sum):
+        return Sum(tuple((s, inline(t, env)) for s, t in node.terms))
+    if isinstance(node, Div):
+        return Div(inline(node.num, env), inline(node.den, env))
+    if isinstance(node, Call):
+        return Call(node.fn, tuple(inline(a, env) for a in node.args))
+    return node
+
+
+def math_text(node) -> str:
+    """Canonical text of a tree for the manifest: `a.e12`, exact rationals."""
+    from .emit.printer import Printer, Syntax
+    from .manifest import coef_text
+    text = Printer(Syntax(coef_text)).expr(node)
+    import re
+    return re.sub(r"\b([ab])_(\w+)", r"\1.\2", text)
+
+
+def shared_products(formulas, prefix: str = "q"):
+    """Products of two or more factors used more than once become temporaries `q_<k>`."""
+    from collections import Counter
+    from .ir import Factor, Term
+    uses = Counter(t.factors for fm in formulas for t in fm.terms if len(t.factors) >= 2)
+    shared = sorted(m for m, n in uses.items() if n >= 2)
+    index = {m: i for i, m in enumerate(shared)}
+    temps = [Assignment(f"{prefix}_{i}", Prod(tuple(Var(var_name(f)) for f in m)))
+             for i, m in enumerate(shared)]
+    def rewrite(t):
+        if t.factors in index:
+            return Term(t.coef, (Factor(prefix, str(index[t.factors])),))
+        return t
+    new = [Formula(fm.comp, tuple(rewrite(t) for t in fm.terms)) for fm in formulas]
+    return temps, new
+
+
+def best_tree(fm: Formula):
+    candidates = [build(fm) for build in FORMS.values()]
+    return min(candidates, key=lambda e: (count(e).mul + count(e).add, count(e).mul))
+
+
+def program_cost(temps, outputs) -> Counts:
+    return sum((count(a.expr) for a in list(temps) + list(outputs)), Counts())
+
+
+def matrix_form(kernel: Kernel) -> tuple[list, list]:
+    """Temps: shared products of `a`, then the matrix entries m<r>_<c>; outputs: M b."""
+    used = {f.comp for fm in kernel.formulas for t in fm.terms for f in t.factors if f.arg == "b"}
+    b_comps = [c for c in kernel.arg_fields[1] if c in used]
+    entries = []
+    for r, fm in enumerate(kernel.formulas):
+        for c in b_comps:
+            terms = tuple(without_b(t, c) for t in fm.terms if b_component(t) == c)
+            entries.append(Formula(f"m{r}_{c}", terms))
+    temps, entries = shared_products([e for e in entries if e.terms])
+    temps += [Assignment(e.comp, best_tree(e)) for e in entries]
+    live = {e.comp for e in entries}
+    outputs = []
+    for r, fm in enumerate(kernel.formulas):
+        terms = [(1, Prod((Var(f"m{r}_{c}"), Var(f"b_{c}")))) for c in b_comps if f"m{r}_{c}" in live]
+        outputs.append(Assignment(fm.comp, _sum(terms)))
+    return temps, outputs
+
+
+def b_component(term) -> str | None:
+    return next((f.comp for f in term.factors if f.arg == "b"), None)
+
+
+def without_b(term, comp: str):
+    from .ir import Term
+    factors = list(term.factors)
+    factors.remove(next(f for f in factors if f.arg == "b" and f.comp == comp))
+    return Term(term.coef, tuple(factors))
+
+
+def cse_form(kernel: Kernel) -> tuple[list, list]:
+    """The direct form after sympy's common-subexpression elimination."""
+    import sympy
+    syms: dict[str, sympy.Symbol] = {}
+    def sym(f):
+        name = var_name(f)
+        return syms.setdefault(name, sympy.Symbol(name))
+    exprs = [sympy.Add(*[sympy.Rational(t.coef.numerator, t.coef.denominator) *
+                         sympy.Mul(*[sym(f) for f in t.factors]) for t in fm.terms])
+             for fm in kernel.formulas]
+    repl, reduced = sympy.cse(exprs, symbols=sympy.numbered_symbols("c_"), order="none")
+    temps = [Assignment(str(s), from_sympy(e)) for s, e in repl]
+    outputs = [Assignment(fm.comp, from_sympy(e)) for fm, e in zip(kernel.formulas, reduced)]
+    return temps, outputs
+
+
+def from_sympy(expr):
+    """A sympy polynomial expression as an expression tree."""
+    import sympy
+    if expr.is_Symbol:
+        return Var(expr.name)
+    if expr.is_Rational:
+        return Num(Fraction(int(expr.p), int(expr.q)))
+    if expr.is_Add:
+        terms = []
+        for arg in sympy.Add.make_args(expr):
+            coef, rest = arg.as_coeff_Mul()
+            node = from_sympy(rest) if coef in (1, -1) else from_sympy(abs(coef) * rest)
+            terms.append((-1 if coef < 0 else 1, node))
+        return Sum(tuple(terms))
+    if expr.is_Mul:
+        coef, rest = expr.as_coeff_Mul()
+        factors = [from_sympy(f) for f in sympy.Mul.make_args(rest)]
+        if coef != 1:
+            factors.insert(0, Num(Fraction(int(coef.p), int(coef.q))))
+        flat = []
+        for f in factors:
+            flat.extend(f.factors if isinstance(f, Prod) else (f,))
+        return Prod(tuple(flat))
+    if expr.is_Pow and expr.exp.is_Integer and expr.exp > 0:
+        return Prod(tuple(from_sympy(expr.base) for _ in range(int(expr.exp))))
+    raise TypeError(f"cannot convert {expr!r}")
+
+
+def sandwich_kernel(kernel: Kernel) -> Kernel:
+    forms = {"direct-cse": cse_form(kernel), "matrix": matrix_form(kernel)}
+    costs = {name: program_cost(*f) for name, f in forms.items()}
+    chosen = min(costs, key=lambda n: (costs[n].mul + costs[n].add, costs[n].mul))
+    temps, outputs = forms[chosen]
+    program = Program(tuple(temps), tuple(outputs), costs[chosen], chosen,
+                      tuple(costs.items()), ("cse",) if chosen == "direct-cse" else ("shared-products",))
+    mt, mo = forms["matrix"]
+    one = Program(tuple(mt), tuple(mo), costs["matrix"], "matrix", (), ("shared-products",))
+    return replace(kernel, program=program, one_to_many=one)
+
+
+def shared_kernel(kernel: Kernel) -> Kernel:
+    """Products of `a` repeated across outputs computed once (sandwich_matrix)."""
+    temps, formulas = shared_products(kernel.formulas)
+    outputs = [Assignment(fm.comp, best_tree(fm)) for fm in formulas]
+    cost = program_cost(temps, outputs)
+    program = Program(tuple(temps), tuple(outputs), cost, "shared-products",
+                      (("shared-products", cost),), ("shared-products",) if temps else ())
+    return replace(kernel, program=program)
+
+
+def optimize_kernel(kernel: Kernel) -> Kernel:
+    if kernel.program is not None:
+        return kernel
+    if kernel.op == "sandwich":
+        return sandwich_kernel(kernel)
+    if kernel.op == "sandwich_matrix":
+        return shared_kernel(kernel)
+    return replace(kernel, program=optimize(kernel))
+
+
+def signed(node) -> tuple[int, object]:
+    """(sign, node without leading negations): -x * y -> (-1, x*y); sums of one term unwrapped."""
+    if isinstance(node, Num):
+        return (-1 if node.value < 0 else 1), Num(abs(node.value))
+    if isinstance(node, Prod):
+        sign, factors = 1, []
+        for f in node.factors:
+            s, g = signed(f)
+            sign *= s
+            if not (isinstance(g, Num) and g.value == 1):
+                factors.append(g)
+        if not factors:
+            return sign, Num(Fraction(1))
+        return sign, factors[0] if len(factors) == 1 else Prod(tuple(factors))
+    if isinstance(node, Sum):
+        terms = [(s * t_s, t) for s, term in node.terms for t_s, t in [signed(term)]]
+        if len(terms) == 1:
+            return terms[0]
+        return 1, Sum(tuple(terms))
+    if isinstance(node, Div):
+        s1, num = signed(node.num)
+        s2, den = signed(node.den)
+        return s1 * s2, Div(num, den)
+    if isinstance(node, Call):
+        return 1, Call(node.fn, tuple(tidy(a) for a in node.args))
+    return 1, node
+
+
+def tidy(node):
+    """The node with signs pulled to the front of each product and sum term."""
+    sign, body = signed(node)
+    return body if sign > 0 else Sum(((-1, body),))

@@ -12,7 +12,7 @@ from . import derive, manifest, model, spec as spec_mod
 from .emit import emitter
 from .files import display_path, output_dir, write_files
 from .ir import Module
-from .optimize import optimize
+from .optimize import optimize_kernel
 
 
 @dataclass(frozen=True)
@@ -31,10 +31,10 @@ def derive_module(spec: spec_mod.Spec) -> Module:
     m = model.build(spec)
     kernels, extra = [], {}
     for ks in spec.kernels:
-        kernel, new_type = derive.derive(m, ks, extra)
-        if new_type is not None:
-            extra[new_type.name] = new_type
-        kernels.append(replace(kernel, program=optimize(kernel)))
+        kernel, new_types = derive.derive(m, ks, extra)
+        for t in new_types:
+            extra[t.name] = t
+        kernels.append(optimize_kernel(kernel))
     types = tuple(m.types.values()) + tuple(extra.values())
     return Module(name=spec.name, spec_path=display_path(spec.path), spec_digest=spec.digest,
                   basis=spec.basis, metric=spec.metric, types=types, kernels=tuple(kernels),

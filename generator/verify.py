@@ -53,9 +53,28 @@ def run_python(module: Module, out_dir: Path):
     def run(kernel: Kernel, inputs: list[np.ndarray]) -> np.ndarray:
         fn = getattr(emitted, kernel.name)
         n = inputs[0].shape[0]
+        if uses_math(kernel):      # math.* takes floats: one call per sample
+            return np.array([fn(*(tuple(map(float, x[i])) for x in inputs)) for i in range(n)])
         cols = fn(*(x.T for x in inputs))
         return np.stack([np.broadcast_to(np.asarray(c, dtype=float), (n,)) for c in cols], axis=1)
     return [("python", run, 1e-10)]
+
+
+def uses_math(kernel: Kernel) -> bool:
+    prog = kernel.program
+    return any(_has_call(a.expr) for a in prog.temps + prog.outputs)
+
+
+def _has_call(node) -> bool:
+    from .ir import Call
+    if isinstance(node, Call):
+        return True
+    children = getattr(node, "factors", None) or getattr(node, "args", None) or ()
+    if hasattr(node, "terms"):
+        children = [t for _, t in node.terms]
+    if hasattr(node, "num"):
+        children = [node.num, node.den]
+    return any(_has_call(c) for c in children)
 
 
 RUNNERS = {"python": run_python}
@@ -80,19 +99,36 @@ class Oracle:
         """(expected result components (N, k), largest reference value outside the result)."""
         types = [self.module.type(t) for t in kernel.args]
         dense = [x @ self.basis(t)[0] for x, t in zip(inputs, types)]
-        rows, bitmaps = self.basis(self.module.type(kernel.result))
-        out = np.empty((inputs[0].shape[0], len(bitmaps)))
-        outside = np.zeros(inputs[0].shape[0])
+        if kernel.op == "sandwich_matrix":
+            return self._matrix(kernel, dense[0], self.basis(types[1])[0])
+        rows = [self._value(kernel, kernel.op, [d[i] for d in dense]) for i in range(len(dense[0]))]
+        return self._split(self.module.type(kernel.result), rows)
+
+    def _value(self, kernel: Kernel, op: str, args) -> np.ndarray:
+        y = self.ref.apply(op, *args)
+        if kernel.grades is not None:
+            y = self.ref.project(y, list(kernel.grades))
+        return np.asarray(y, dtype=float)
+
+    def _split(self, t: TypeDef, values) -> tuple[np.ndarray, np.ndarray]:
+        """Components of t (named orientation) and the largest value outside t, per sample."""
+        rows, bitmaps = self.basis(t)
+        signs = rows[np.arange(len(bitmaps)), bitmaps]
         mask = np.ones(self.ref.size, dtype=bool)
         mask[bitmaps] = False
-        for i in range(out.shape[0]):
-            y = self.ref.apply(kernel.op, *(d[i] for d in dense))
-            if kernel.grades is not None:
-                y = self.ref.project(y, list(kernel.grades))
-            y = np.asarray(y, dtype=float)
-            out[i] = y[bitmaps] / rows[np.arange(len(bitmaps)), bitmaps]
-            outside[i] = np.max(np.abs(y[mask]), initial=0.0)
-        return out, outside
+        values = np.array(values, dtype=float).reshape(-1, self.ref.size)
+        return values[:, bitmaps] / signs, np.max(np.abs(values[:, mask]), axis=1, initial=0.0)
+
+    def _matrix(self, kernel: Kernel, versors: np.ndarray, x_blades: np.ndarray):
+        """Row-major M(V): column c is the sandwich of V with the c-th blade of X."""
+        rows_type = self.module.type(kernel.rows)
+        out, outside = [], []
+        for v in versors:
+            cols = [self._value(kernel, "sandwich", [v, x]) for x in x_blades]
+            comps, rest = self._split(rows_type, cols)
+            out.append(comps.T.reshape(-1))
+            outside.append(rest.max(initial=0.0))
+        return np.array(out), np.array(outside)
 
 
 def random_inputs(module: Module, kernel: Kernel, samples: int, seed: int) -> list[np.ndarray]:
