@@ -97,6 +97,10 @@ def check_kernel(model: Model, k: KernelSpec) -> None:
             raise spec.error(f"{k.key}.args[{i}]", f"unknown type {a!r}{suggest(a, model.types)}")
     if k.result is not None and k.result not in model.types:
         raise spec.error(f"{k.key}.result", f"unknown type {k.result!r}{suggest(k.result, model.types)}")
+    if op.nondegenerate and model.algebra.degenerate:
+        raise spec.error(f"{k.key}.op", f"{k.op!r} needs a non-degenerate metric, but the metric of "
+                                        f"{spec.name!r} is degenerate (its determinant is 0); use "
+                                        f"'complement' / 'uncomplement', which are metric-free")
     for i, g in enumerate(k.grades or ()):
         if not 0 <= g <= model.algebra.n:
             raise spec.error(f"{k.key}.grades[{i}]", f"grade {g} does not exist (0..{model.algebra.n})")

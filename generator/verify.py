@@ -133,7 +133,8 @@ class Oracle:
 
 def random_inputs(module: Module, kernel: Kernel, samples: int, seed: int) -> list[np.ndarray]:
     rng = np.random.default_rng([seed, len(kernel.name)] + [ord(ch) for ch in kernel.name])
-    return [rng.uniform(-1.0, 1.0, (samples, len(module.type(t).components))) for t in kernel.args]
+    args = kernel.args[:len(kernel.arg_names)]      # sandwich_matrix takes only the versor
+    return [rng.uniform(-1.0, 1.0, (samples, len(module.type(t).components))) for t in args]
 
 
 def verify(module: Module, out_dir: Path, samples: int = SAMPLES, seed: int = SEED) -> list[Row]:

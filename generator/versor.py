@@ -69,7 +69,7 @@ def derive_matrix(model, ks, op, variables, extra):
     entries = matrix_entries(rows, x_type, mv, variables)
     mtype = matrix_type(ks.name, rows, x_type)
     kernel = Kernel(name=ks.name, op=ks.op, args=tuple(ks.args), result=mtype.name,
-                    formulas=tuple(entries), arg_names=("a", "b"), summary=op.formula,
+                    formulas=tuple(entries), arg_names=("a",), summary=op.formula,
                     grades=ks.grades, rows=rows.name)
     return kernel, (new_rows, mtype)
 
