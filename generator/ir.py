@@ -157,6 +157,7 @@ class Kernel:
     grades: tuple[int, ...] | None = None
     program: Program | None = None
     arg_fields: tuple = ()              # component identifiers of each argument type
+    options: tuple = ()                 # op-specific keys from the spec, e.g. (("origin", "eo"),)
     rows: str | None = None             # sandwich_matrix: the type of the transformed element
     one_to_many: Program | None = None  # sandwich: temps depend on `a` only (hoistable), then outputs
 

@@ -97,6 +97,9 @@ def check_kernel(model: Model, k: KernelSpec) -> None:
             raise spec.error(f"{k.key}.args[{i}]", f"unknown type {a!r}{suggest(a, model.types)}")
     if k.result is not None and k.result not in model.types:
         raise spec.error(f"{k.key}.result", f"unknown type {k.result!r}{suggest(k.result, model.types)}")
+    for key, _ in k.options:
+        if k.op != "up":
+            raise spec.error(f"{k.key}.{key}", f"key {key!r} only applies to op 'up'")
     if op.nondegenerate and model.algebra.degenerate:
         raise spec.error(f"{k.key}.op", f"{k.op!r} needs a non-degenerate metric, but the metric of "
                                         f"{spec.name!r} is degenerate (its determinant is 0); use "

@@ -60,6 +60,7 @@ CATALOGUE: dict[str, Operation] = dict([
     _row("undual", 1, "undual", "a I (non-degenerate metrics only)", nondegenerate=True),
     _row("norm_squared", 1, "norm_squared", "<a ~a>_0"),
     _row("inverse", 1, "inverse", "~a (a ~a)^-1, for types whose a ~a is a scalar (plus a null pseudoscalar)"),
+    _row("up", 1, "up", "conformal up-projection x + o + (x.x) i / (-2 o.i); keys origin, infinity"),
     _row("exp", 1, "exp", "exp(a) in closed form, for a whose square is a scalar (plus a null pseudoscalar)"),
 ])
 

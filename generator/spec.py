@@ -19,6 +19,8 @@ from .names import identifier_problem
 from .tomllines import LineIndex
 
 TARGETS = ("python", "numba", "c")
+OPTION_KEYS = ("origin", "infinity")        # op-specific kernel keys (the conformal `up`)
+KERNEL_KEYS = ("op", "args", "name", "result", "grades") + OPTION_KEYS
 TARGET_KEYS = {"python": (), "numba": (), "c": ("real",)}
 C_REALS = ("double", "float")
 MAX_DIMENSION = 16
@@ -54,6 +56,10 @@ class KernelSpec:
     result: str | None
     grades: tuple[int, ...] | None
     key: str                                # "kernels[2]"
+    options: tuple[tuple[str, str], ...] = ()   # op-specific keys, e.g. (("origin", "eo"), ...)
+
+    def option(self, name: str) -> str | None:
+        return dict(self.options).get(name)
 
 
 @dataclass(frozen=True)
@@ -262,7 +268,7 @@ def _kernels(r: _Reader, value) -> tuple[KernelSpec, ...]:
     out, names = [], {}
     for i, body in enumerate(value):
         key = f"kernels[{i}]"
-        r.table(body, key, ("op", "args", "name", "result", "grades"), ("op", "args"))
+        r.table(body, key, KERNEL_KEYS, ("op", "args"))
         op = r.string(body["op"], f"{key}.op")
         args = r.strings(body["args"], f"{key}.args")
         name = body.get("name")
@@ -274,7 +280,8 @@ def _kernels(r: _Reader, value) -> tuple[KernelSpec, ...]:
         names[name] = i
         result = r.ident(body["result"], f"{key}.result") if "result" in body else None
         grades = r.ints(body["grades"], f"{key}.grades") if "grades" in body else None
-        out.append(KernelSpec(op, args, name, result, grades, key))
+        options = tuple((k, r.string(body[k], f"{key}.{k}")) for k in OPTION_KEYS if k in body)
+        out.append(KernelSpec(op, args, name, result, grades, key, options))
     return tuple(out)
 
 

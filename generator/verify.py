@@ -105,10 +105,18 @@ class Oracle:
         return self._split(self.module.type(kernel.result), rows)
 
     def _value(self, kernel: Kernel, op: str, args) -> np.ndarray:
-        y = self.ref.apply(op, *args)
+        y = self._up(kernel, args[0]) if op == "up" else self.ref.apply(op, *args)
         if kernel.grades is not None:
             y = self.ref.project(y, list(kernel.grades))
         return np.asarray(y, dtype=float)
+
+    def _up(self, kernel: Kernel, x: np.ndarray) -> np.ndarray:
+        """x + o + c (x.x) i with c = -1 / (2 o.i), all products taken by the reference."""
+        opts = dict(kernel.options)
+        o = self.ref.vector(self.module.basis.index(opts["origin"]))
+        i = self.ref.vector(self.module.basis.index(opts["infinity"]))
+        oi = self.ref.scalar_product(o, i)[0]
+        return x + o - self.ref.scalar_product(x, x)[0] / (2 * oi) * i
 
     def _split(self, t: TypeDef, values) -> tuple[np.ndarray, np.ndarray]:
         """Components of t (named orientation) and the largest value outside t, per sample."""

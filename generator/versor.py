@@ -192,4 +192,9 @@ def _add_constant(out: dict, result: TypeDef, mv: MV, node) -> None:
             out[comp.ident] = Sum(((1, out[comp.ident]), (1, term))) if comp.ident in out else term
 
 
-SPECIAL = {"sandwich_matrix": derive_matrix, "inverse": derive_inverse, "exp": derive_exp}
+def _up(*args):
+    from .conformal import derive_up
+    return derive_up(*args)
+
+
+SPECIAL = {"sandwich_matrix": derive_matrix, "inverse": derive_inverse, "exp": derive_exp, "up": _up}
