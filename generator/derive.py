@@ -34,7 +34,7 @@ class Variables:
         for arg, t in args:
             mv: MV = {}
             for c in t.components:
-                mv[c.bitmap] = {(len(self.factors),): Fraction(c.sign)}
+                mv[c.bitmap] = {(len(self.factors),): c.sign}
                 self.factors.append(Factor(arg, c.ident))
             self.mvs.append(mv)
 
@@ -49,6 +49,10 @@ def _add_into(acc: Poly, poly: Poly, scale: Fraction) -> None:
 
 
 def poly_mul(p: Poly, q: Poly) -> Poly:
+    if len(p) == 1 and len(q) == 1:          # the common case: two single terms
+        (m1, c1), = p.items()
+        (m2, c2), = q.items()
+        return {tuple(sorted(m1 + m2)): c1 * c2}
     out: Poly = {}
     for m1, c1 in p.items():
         for m2, c2 in q.items():
@@ -98,7 +102,7 @@ def commutator(alg: Algebra, A: MV, B: MV, stats=None) -> MV:
     return linear(ab, ba, Fraction(-1), Fraction(1, 2))
 
 
-def linear(A: MV, B: MV, sign: Fraction, scale: Fraction = Fraction(1)) -> MV:
+def linear(A: MV, B: MV, sign, scale=1) -> MV:
     out: MV = {}
     for k, p in A.items():
         _add_into(out.setdefault(k, {}), p, scale)
@@ -126,7 +130,7 @@ def _rules() -> dict:
     return {
         "bilinear": lambda alg, op, m, st: bilinear(alg, op.keep, m[0], m[1], st),
         "commutator": lambda alg, op, m, st: commutator(alg, m[0], m[1], st),
-        "linear": lambda alg, op, m, st: linear(m[0], m[1], Fraction(op.linear_sign)),
+        "linear": lambda alg, op, m, st: linear(m[0], m[1], op.linear_sign),
         "grade_sign": lambda alg, op, m, st: grade_sign(op, m[0]),
         "complement": lambda alg, op, m, st: d.complement(alg, m[0]),
         "uncomplement": lambda alg, op, m, st: d.uncomplement(alg, m[0]),

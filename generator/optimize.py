@@ -79,19 +79,48 @@ def grouped(formula: Formula):
 FORMS = {"expanded": expanded, "grouped": grouped}
 
 
+def _term_mul(t) -> int:
+    return max(len(t.factors) - 1, 0) + (abs(t.coef) != 1 and bool(t.factors))
+
+
+def expanded_counts(fm: Formula) -> Counts:
+    """count(expanded(fm)), computed from the terms without building the tree."""
+    return Counts(mul=sum(_term_mul(t) for t in fm.terms), add=max(len(fm.terms) - 1, 0))
+
+
+def grouped_counts(fm: Formula) -> Counts:
+    groups: dict = {}
+    for t in fm.terms:
+        groups.setdefault(abs(t.coef), []).append(t)
+    mul, add, parts = 0, 0, 0
+    for mag, ts in groups.items():
+        if mag == 1 or len(ts) == 1:
+            mul, parts = mul + sum(_term_mul(t) for t in ts), parts + len(ts)
+        else:
+            inner = sum(max(len(t.factors) - 1, 0) for t in ts)
+            mul, add, parts = mul + inner + 1, add + len(ts) - 1, parts + 1
+    return Counts(mul=mul, add=add + max(parts - 1, 0))
+
+
+FORM_COUNTS = {"expanded": expanded_counts, "grouped": grouped_counts}
+
+
+def _cost(c: Counts) -> tuple:
+    return (c.mul + c.add + c.div, c.mul)
+
+
 def optimize(kernel: Kernel) -> Program:
     """The program of one kernel: per output, the cheapest form (ties go to the first form)."""
     per_form: dict[str, Counts] = {name: Counts() for name in FORMS}
     outputs, total, used = [], Counts(), set()
     for fm in kernel.formulas:
-        candidates = [(name, build(fm)) for name, build in FORMS.items()]
-        costs = [(name, expr, count(expr)) for name, expr in candidates]
-        for name, _, c in costs:
+        costs = {name: counter(fm) for name, counter in FORM_COUNTS.items()}
+        for name, c in costs.items():
             per_form[name] = per_form[name] + c
-        name, expr, c = min(costs, key=lambda x: (x[2].mul + x[2].add + x[2].div, x[2].mul))
+        name = min(costs, key=lambda n: _cost(costs[n]))
         used.add(name)
-        outputs.append(Assignment(fm.comp, expr))
-        total = total + c
+        outputs.append(Assignment(fm.comp, FORMS[name](fm)))
+        total = total + costs[name]
     chosen = "grouped" if "grouped" in used and per_form["grouped"] != per_form["expanded"] else "expanded"
     applied = ("group-coefficients",) if chosen == "grouped" else ()
     return Program(temps=(), outputs=tuple(outputs), counts=total, form=chosen,

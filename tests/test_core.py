@@ -247,3 +247,15 @@ def test_derivation_cost_follows_declared_types():
     variables = derive.Variables([("a", m.types["t0"]), ("b", m.types["t1"])])
     derive.apply(m.algebra, derive.CATALOGUE["geometric"], variables.mvs, stats)
     assert stats.pairs == n * n
+
+
+@pytest.mark.parametrize("path", SPECS, ids=[p.stem for p in SPECS])
+def test_fast_counts_equal_tree_counts(path):
+    # the optimizer counts forms from the terms; the trees it emits must count the same
+    from generator.optimize import FORM_COUNTS, FORMS, count
+    module = pipeline.derive_module(spec_mod.load(path))
+    for k in module.kernels:
+        for fm in k.formulas:
+            if fm.text is None:
+                for name, build in FORMS.items():
+                    assert FORM_COUNTS[name](fm) == count(build(fm)), (k.name, fm.comp, name)
