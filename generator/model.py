@@ -11,6 +11,8 @@ from dataclasses import dataclass
 
 from .algebra import Algebra, NameError_, canonical_key
 from .ir import TypeDef
+from .names import (c_names, c_problem, clash, identifier_problem, python_names, python_problem,
+                    shown)
 from .ops import CATALOGUE
 from .spec import KernelSpec, Spec, TypeSpec
 
@@ -29,11 +31,46 @@ def build(spec: Spec) -> Model:
             algebra.add_preferred(name)
         except NameError_ as exc:
             raise spec.error(f"algebra.blades[{i}]", str(exc)) from None
+        if identifier_problem(name.replace("^", "_")):
+            raise spec.error(f"algebra.blades[{i}]", identifier_problem(name.replace("^", "_")))
     types = {t.name: _type(spec, algebra, t) for t in spec.types}
     model = Model(spec, algebra, types)
     for k in spec.kernels:
         check_kernel(model, k)
+    check_names(model)
     return model
+
+
+def check_names(model: Model, inferred: tuple[tuple[TypeDef, str], ...] = ()) -> None:
+    """Every identifier the targets emit is valid and unique per target; `inferred` holds the
+    (type, kernel key) of each result type the derivation added."""
+    spec = model.spec
+    for t, key in inferred:
+        check_components(spec, t, key)
+    for k in spec.kernels:
+        if identifier_problem(k.name):
+            raise spec.error(k.key, f"the kernel name: {identifier_problem(k.name)}; set 'name'")
+    types = {t.name: t.key for t in spec.types} | {t.name: key for t, key in inferred}
+    kernels = {k.name: k.key for k in spec.kernels}
+    for target, rows, problem in (("C", c_names(spec.name, types, kernels), c_problem),
+                                  ("Python", python_names(kernels), python_problem)):
+        found = clash(target, rows, problem)
+        if found:
+            raise spec.error(*found)
+
+
+def check_components(spec: Spec, t: TypeDef, key: str) -> None:
+    """Each component's identifier is valid and used once in the type."""
+    seen: dict[str, str] = {}
+    for c in t.components:
+        if identifier_problem(c.ident):
+            raise spec.error(key, f"blade {c.name!r} becomes the identifier {c.ident!r} in type "
+                                  f"{t.name!r}: {identifier_problem(c.ident)}; rename a basis vector "
+                                  "or give the blade another name in [algebra] blades")
+        if c.ident in seen:
+            raise spec.error(key, f"blades {seen[c.ident]!r} and {c.name!r} both become the "
+                                  f"identifier {c.ident!r}; rename a basis vector")
+        seen[c.ident] = c.name
 
 
 def _type(spec: Spec, algebra: Algebra, t: TypeSpec) -> TypeDef:
@@ -41,13 +78,9 @@ def _type(spec: Spec, algebra: Algebra, t: TypeSpec) -> TypeDef:
         comps = _grade_components(spec, algebra, t)
     else:
         comps = _blade_components(spec, algebra, t)
-    seen: dict[str, str] = {}
-    for c in comps:
-        if c.ident in seen:
-            raise spec.error(f"{t.key}", f"blades {seen[c.ident]!r} and {c.name!r} both become the "
-                                         f"identifier {c.ident!r}; rename a basis vector")
-        seen[c.ident] = c.name
-    return TypeDef(t.name, tuple(comps))
+    typedef = TypeDef(t.name, tuple(comps))
+    check_components(spec, typedef, t.key)
+    return typedef
 
 
 def _grade_components(spec: Spec, algebra: Algebra, t: TypeSpec):
@@ -86,7 +119,7 @@ def suggest(name: str, options) -> str:
 def check_kernel(model: Model, k: KernelSpec) -> None:
     spec = model.spec
     if k.op not in CATALOGUE:
-        raise spec.error(f"{k.key}.op", f"unknown operation {k.op!r}{suggest(k.op, CATALOGUE)}; "
+        raise spec.error(f"{k.key}.op", f"unknown operation {shown(k.op)}{suggest(k.op, CATALOGUE)}; "
                                         f"operations: {', '.join(CATALOGUE)}")
     op = CATALOGUE[k.op]
     if len(k.args) != op.arity:
@@ -94,9 +127,9 @@ def check_kernel(model: Model, k: KernelSpec) -> None:
                                           f"{'s' if op.arity > 1 else ''}, got {len(k.args)}")
     for i, a in enumerate(k.args):
         if a not in model.types:
-            raise spec.error(f"{k.key}.args[{i}]", f"unknown type {a!r}{suggest(a, model.types)}")
+            raise spec.error(f"{k.key}.args[{i}]", f"unknown type {shown(a)}{suggest(a, model.types)}")
     if k.result is not None and k.result not in model.types:
-        raise spec.error(f"{k.key}.result", f"unknown type {k.result!r}{suggest(k.result, model.types)}")
+        raise spec.error(f"{k.key}.result", f"unknown type {shown(k.result)}{suggest(k.result, model.types)}")
     for key, _ in k.options:
         if k.op != "up":
             raise spec.error(f"{k.key}.{key}", f"key {key!r} only applies to op 'up'")

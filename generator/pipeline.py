@@ -8,7 +8,7 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-from . import derive, manifest, model, spec as spec_mod
+from . import budget, derive, manifest, model, spec as spec_mod
 from .emit import emitter
 from .files import display_path, output_dir, write_files
 from .ir import Module
@@ -27,14 +27,22 @@ class Build:
         return f"{self.module.name}.manifest.json"
 
 
-def derive_module(spec: spec_mod.Spec) -> Module:
+def derive_module(spec: spec_mod.Spec, progress=None, max_terms: int | None = None) -> Module:
+    """`progress(done, total, label)`, when given, is called after each kernel; a spec whose
+    estimated cost exceeds `max_terms` (None: `budget.limit()`) is refused before deriving."""
+    budget.check_types(spec, max_terms)
     m = model.build(spec)
-    kernels, extra = [], {}
+    budget.check_kernels(m, max_terms)
+    kernels, extra, inferred = [], {}, []
     for ks in spec.kernels:
         kernel, new_types = derive.derive(m, ks, extra)
         for t in new_types:
             extra[t.name] = t
+            inferred.append((t, ks.key))
         kernels.append(optimize_kernel(kernel))
+        if progress is not None:
+            progress(len(kernels), len(spec.kernels), spec.display)
+    model.check_names(m, tuple(inferred))
     types = tuple(m.types.values()) + tuple(extra.values())
     return Module(name=spec.name, spec_path=display_path(spec.path), spec_digest=spec.digest,
                   basis=spec.basis, metric=spec.metric, types=types, kernels=tuple(kernels),
@@ -49,10 +57,11 @@ def render(module: Module) -> dict[str, str]:
     return files
 
 
-def build(path: str | Path, cli_out: str | None = None, display: str | None = None) -> Build:
+def build(path: str | Path, cli_out: str | None = None, display: str | None = None,
+          progress=None, max_terms: int | None = None) -> Build:
     spec = spec_mod.load(path, display)
     out = output_dir(spec, cli_out)
-    module = derive_module(spec)
+    module = derive_module(spec, progress, max_terms)
     return Build(spec, module, out, render(module))
 
 

@@ -15,8 +15,8 @@ from dataclasses import dataclass
 from fractions import Fraction
 from pathlib import Path
 
-from .names import identifier_problem
-from .tomllines import LineIndex
+from .names import identifier_problem, module_problem, printable, shown
+from .tomllines import LineIndex, key_part
 
 TARGETS = ("python", "numba", "c")
 OPTION_KEYS = ("origin", "infinity")        # op-specific kernel keys (the conformal `up`)
@@ -24,6 +24,7 @@ KERNEL_KEYS = ("op", "args", "name", "result", "grades") + OPTION_KEYS
 TARGET_KEYS = {"python": (), "numba": (), "c": ("real",)}
 C_REALS = ("double", "float")
 MAX_DIMENSION = 16
+TOP_KEYS = ("algebra", "types", "kernels", "targets", "output")
 
 _RATIONAL = re.compile(r"\s*[-+]?\d+(\s*/\s*\d+)?\s*\Z")
 
@@ -37,7 +38,8 @@ class SpecError(Exception):
 
     def __str__(self) -> str:
         where = f"{self.file}:{self.line}" if self.line else f"{self.file}"
-        return f"{where}: {self.key}: {self.message}" if self.key else f"{where}: {self.message}"
+        text = f"{where}: {self.key}: {self.message}" if self.key else f"{where}: {self.message}"
+        return printable(text)
 
 
 @dataclass(frozen=True)
@@ -97,7 +99,7 @@ class _Reader:
             self.fail(key, f"expected a table, got {_kind(value)}")
         for name in sorted(value):
             if name not in allowed:
-                self.fail(_join(key, name), f"unknown key {name!r}{_suggest(name, allowed)}")
+                self.fail(_join(key, name), f"unknown key {shown(name)}{_suggest(name, allowed, key)}")
         for name in required:
             if name not in value:
                 self.fail(key, f"missing required key {name!r}")
@@ -138,9 +140,12 @@ class _Reader:
                            "as an integer or a rational string like \"1/2\"")
         if isinstance(value, str) and _RATIONAL.match(value):
             if re.search(r"/\s*0+\s*\Z", value):
-                self.fail(key, f"{value!r} divides by zero")
-            return Fraction(value.replace(" ", ""))
-        self.fail(key, f"expected an integer or a rational string like \"1/2\", got {value!r}")
+                self.fail(key, f"{shown(value)} divides by zero")
+            try:
+                return Fraction(value.replace(" ", ""))
+            except ValueError as exc:          # e.g. more digits than Python converts
+                self.fail(key, f"{shown(value)} is not a usable number: {_digits(exc)}")
+        self.fail(key, f"expected an integer or a rational string like \"1/2\", got {shown(value)}")
 
 
 def _kind(value) -> str:
@@ -150,13 +155,18 @@ def _kind(value) -> str:
 
 
 def _join(key: str, name: str) -> str:
-    return f"{key}.{name}" if key else name
+    return f"{key}.{key_part(name)}" if key else key_part(name)
 
 
-def _suggest(name: str, allowed) -> str:
+def _suggest(name: str, allowed, key: str = "") -> str:
     close = difflib.get_close_matches(name, list(allowed), n=1, cutoff=0.6)
     if close:
         return f" (did you mean {close[0]!r}?)"
+    if key and name in TOP_KEYS:
+        return (f"; {name!r} is a top-level key, but here it belongs to [{key}]: move it above "
+                "the first table header")
+    if not allowed:
+        return "; this table takes no keys"
     return f"; expected one of: {', '.join(allowed)}"
 
 
@@ -176,17 +186,14 @@ def load(path: str | Path, display: str | None = None) -> Spec:
 
 
 def parse(text: str, path: Path, display: str, digest: str) -> Spec:
-    try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        line = re.search(r"line (\d+)", str(exc))
-        raise SpecError(display, "", f"TOML syntax error: {exc}",
-                        int(line.group(1)) if line else None) from None
+    doc = _toml(text, display)
     r = _Reader(display, text)
-    r.table(doc, "", ("algebra", "types", "kernels", "targets", "output"), ("algebra",))
+    r.table(doc, "", TOP_KEYS, ("algebra",))
     alg = r.table(doc["algebra"], "algebra", ("name", "basis", "metric", "blades"),
                   ("name", "basis", "metric"))
     name = r.ident(alg["name"], "algebra.name")
+    if module_problem(name):
+        r.fail("algebra.name", module_problem(name))
     basis = _basis(r, alg["basis"])
     metric, diagonal = _metric(r, alg["metric"], len(basis))
     blade_names = r.strings(alg.get("blades", []), "algebra.blades")
@@ -197,13 +204,34 @@ def parse(text: str, path: Path, display: str, digest: str) -> Spec:
                 lines=r.lines)
 
 
+def _digits(exc: ValueError) -> str:
+    """Python's complaint about an over-long number, without its advice to call sys functions."""
+    return str(exc).split("; use sys.")[0]
+
+
+def _toml(text: str, display: str) -> dict:
+    """tomllib's document, or a SpecError at the line of the syntax error."""
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        where = re.search(r" \(at line (\d+), column (\d+)\)", str(exc))
+        message = str(exc).replace(where.group(0), f" (column {where.group(2)})") if where else str(exc)
+        line = int(where.group(1)) if where else text.count("\n") + 1
+        raise SpecError(display, "", f"TOML syntax error: {message}", line) from None
+    except (RecursionError, ValueError) as exc:   # absurd nesting, or an integer too long
+        why = "it is nested too deeply" if isinstance(exc, RecursionError) else _digits(exc)
+        raise SpecError(display, "", f"the TOML document cannot be read: {why}") from None
+
+
 def _basis(r: _Reader, value) -> tuple[str, ...]:
     basis = r.strings(value, "algebra.basis", idents=True)
     if not basis:
         r.fail("algebra.basis", "the basis is empty; list the basis vector names, e.g. [\"e1\", \"e2\"]")
     if len(basis) > MAX_DIMENSION:
         r.fail("algebra.basis", f"{len(basis)} basis vectors: the dimension is limited to "
-                                f"{MAX_DIMENSION} (the blade bitmaps and name tables grow as 2^n)")
+                                f"{MAX_DIMENSION}, since a multivector of a {len(basis)}-dimensional "
+                                f"algebra has {2 ** len(basis)} components, beyond exact derivation "
+                                "and the dense reference; model the subalgebra you need")
     seen: dict[str, int] = {}
     for i, b in enumerate(basis):
         if b in seen:
@@ -245,10 +273,12 @@ def _matrix(r: _Reader, rows, n: int):
 
 
 def _types(r: _Reader, value) -> tuple[TypeSpec, ...]:
-    r.table(value, "types", tuple(value) if isinstance(value, dict) else ())
+    if not isinstance(value, dict):
+        r.fail("types", f"expected a table of types, got {_kind(value)}: write each type as "
+                        "[types.NAME] with 'grades' or 'blades'")
     out = []
     for name in value:
-        key = f"types.{name}"
+        key = f"types.{key_part(name)}"
         r.ident(name, key)
         body = r.table(value[name], key, ("grades", "blades"))
         if ("grades" in body) == ("blades" in body):
@@ -280,6 +310,8 @@ def _kernels(r: _Reader, value) -> tuple[KernelSpec, ...]:
         names[name] = i
         result = r.ident(body["result"], f"{key}.result") if "result" in body else None
         grades = r.ints(body["grades"], f"{key}.grades") if "grades" in body else None
+        if grades == ():
+            r.fail(f"{key}.grades", "an empty list keeps no grade; remove 'grades' to keep them all")
         options = tuple((k, r.string(body[k], f"{key}.{k}")) for k in OPTION_KEYS if k in body)
         out.append(KernelSpec(op, args, name, result, grades, key, options))
     return tuple(out)
@@ -294,7 +326,7 @@ def _targets(r: _Reader, value) -> dict:
         if t in value:
             opts = dict(r.table(value[t], f"targets.{t}", TARGET_KEYS[t]))
             if "real" in opts and opts["real"] not in C_REALS:
-                r.fail("targets.c.real", f"expected \"double\" or \"float\", got {opts['real']!r}")
+                r.fail("targets.c.real", f"expected \"double\" or \"float\", got {shown(opts['real'])}")
             out[t] = opts
     if not out:
         r.fail("targets", "no target selected: add [targets.python], [targets.numba] or [targets.c]")

@@ -6,22 +6,45 @@ under its full key path (`kernels[2].args`), which is enough to point a user at 
 """
 from __future__ import annotations
 
+import json
 import re
 
+_QUOTED = r'"(?:[^"\\]|\\.)*"'
+_BARE = re.compile(r"[A-Za-z0-9_\-]+\Z")
 _HEADER = re.compile(r"^\s*(\[\[?)\s*([^\]]+?)\s*\]\]?\s*(#.*)?$")
-_KEY = re.compile(r"^\s*((?:[A-Za-z0-9_\-]+|\"[^\"]*\"|'[^']*')(?:\s*\.\s*(?:[A-Za-z0-9_\-]+|\"[^\"]*\"|'[^']*'))*)\s*=")
+_PART = rf"(?:[A-Za-z0-9_\-]+|{_QUOTED}|'[^']*')"
+_KEY = re.compile(rf"^\s*({_PART}(?:\s*\.\s*{_PART})*)\s*=")
+
+
+def _json_escape(match: re.Match) -> str:
+    code = int(match.group(1), 16)
+    return json.dumps(chr(code))[1:-1] if code < 0x110000 else match.group(0)
+
+
+def _unescape(body: str) -> str:
+    """The value of a TOML basic string's body (JSON escapes plus \\UXXXXXXXX)."""
+    body = re.sub(r"\\U([0-9A-Fa-f]{8})", _json_escape, body)
+    try:
+        return json.loads(f'"{body}"')
+    except ValueError:
+        return body
 
 
 def _split_key(text: str) -> list[str]:
-    parts = re.findall(r"\"([^\"]*)\"|'([^']*)'|([A-Za-z0-9_\-]+)", text)
-    return [a or b or c for a, b, c in parts]
+    parts = re.findall(rf"({_QUOTED})|'([^']*)'|([A-Za-z0-9_\-]+)", text)
+    return [_unescape(a[1:-1]) if a else b or c for a, b, c in parts]
+
+
+def key_part(name: str) -> str:
+    """One key as it is shown in a key path: bare when TOML allows it, else quoted and escaped."""
+    return name if _BARE.match(name) else json.dumps(name)
 
 
 def parse_path(path: str) -> tuple:
-    """'kernels[2].args[1]' -> ('kernels', 2, 'args', 1)."""
+    """'kernels[2].args[1]' -> ('kernels', 2, 'args', 1); quoted parts as `key_part` writes them."""
     out: list = []
-    for name, index in re.findall(r"([^.\[\]]+)|\[(\d+)\]", path):
-        out.append(int(index) if index else name)
+    for quoted, name, index in re.findall(rf"({_QUOTED})|([^.\[\]\"]+)|\[(\d+)\]", path):
+        out.append(int(index) if index else json.loads(quoted) if quoted else name)
     return tuple(out)
 
 
@@ -47,6 +70,8 @@ class LineIndex:
             if header:
                 table = self._header(header, counts)
                 self.lines.setdefault(table, number)
+                if table and isinstance(table[-1], int):     # [[x]]: x is at its first header
+                    self.lines.setdefault(table[:-1], number)
                 continue
             key = _KEY.match(line)
             if key:

@@ -77,7 +77,19 @@ def _has_call(node) -> bool:
     return any(_has_call(c) for c in children)
 
 
-RUNNERS = {"python": run_python}
+def run_numba(module: Module, out_dir: Path):
+    from .native import numba_runners
+    return numba_runners(module, out_dir)
+
+
+def run_c(module: Module, out_dir: Path):
+    from .native import c_runners
+    return c_runners(module, out_dir)
+
+
+# target -> runners: [(label, run(kernel, inputs) -> (N, k) array, relative tolerance[, note])];
+# the tolerance may be a function rel(kernel, inputs) (float builds: see native.py)
+RUNNERS = {"python": run_python, "numba": run_numba, "c": run_c}
 
 
 class Oracle:
@@ -156,12 +168,13 @@ def verify(module: Module, out_dir: Path, samples: int = SAMPLES, seed: int = SE
         inputs = random_inputs(module, kernel, samples, seed)
         expected, outside = oracle.evaluate(kernel, inputs)
         scale = 1.0 + float(np.max(np.abs(expected), initial=0.0))
-        for target, run, rel in runners:
+        for target, run, rel, *about in runners:
             got = np.asarray(run(kernel, [x.copy() for x in inputs]), dtype=float)
             err = float(np.max(np.abs(got - expected), initial=0.0))
             err = max(err, float(np.max(outside, initial=0.0)))
-            note = "" if err <= rel * scale * _terms(kernel) else "mismatch"
-            rows.append(Row(kernel.name, target, samples, err, rel * scale * _terms(kernel), note))
+            tol = (rel(kernel, inputs) if callable(rel) else rel) * scale * _terms(kernel)
+            note = "; ".join([x for x in about[:1] if x] + ([] if err <= tol else ["mismatch"]))
+            rows.append(Row(kernel.name, target, samples, err, tol, note))
     return rows
 
 

@@ -131,7 +131,7 @@ def derive_inverse(model, ks, op, variables, extra):
     square = prune(norm_full(alg, A), None)
     if not square.get(0):
         raise model.spec.error(ks.key, f"{ks.args[0]!r} has no scalar norm: a ~a has no scalar part")
-    null = _structure(model, ks, square, "a ~a")
+    null = _structure(model, ks, square, "the norm a ~a")
     full = duality.full(alg)
     rev = reverse(A)
     temps = [Assignment("t0", _scalar_tree(square[0], variables)),
@@ -159,7 +159,7 @@ def norm_full(alg, A: MV) -> MV:
 def derive_exp(model, ks, op, variables, extra):
     alg, B = model.algebra, variables.mvs[0]
     square = prune(bilinear(alg, GEOMETRIC, B, B), None)
-    null = _structure(model, ks, square, "a a")
+    null = _structure(model, ks, square, "the square a a")
     full = duality.full(alg)
     temps = [Assignment("t0", _scalar_tree(square.get(0, {}), variables)),
              Assignment("t1", Call("exp_c", (Var("t0"),))),

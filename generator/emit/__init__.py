@@ -6,10 +6,14 @@ register the class in `TARGETS` below (see DEVELOPERS.md).
 from __future__ import annotations
 
 from .base import Emitter
+from .c import CEmitter
+from .numba import NumbaEmitter
 from .python import PythonEmitter
 
 TARGETS: dict[str, type[Emitter]] = {
     "python": PythonEmitter,
+    "numba": NumbaEmitter,
+    "c": CEmitter,
 }
 
 

@@ -8,12 +8,15 @@ names a missing field fails loudly instead of emitting an empty string.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from fractions import Fraction
+from math import factorial
 from pathlib import Path
 
 import jinja2
 
-from ..ir import Kernel, Module
+from ..ir import Call, Div, Kernel, Module, Num, Prod, Sum, Var
 from ..names import comment_text
+from ..spec import SpecError
 from .printer import Printer, Syntax
 
 
@@ -110,3 +113,76 @@ class Emitter:
     @staticmethod
     def type_rows(module: Module) -> list[tuple[str, tuple[str, ...]]]:
         return [(t.name, tuple(c.ident for c in t.components)) for t in module.types]
+
+
+# --- emitted names must not coincide -------------------------------------------------------------
+
+def check_unique(module: Module, target: str, names) -> None:
+    """Raise a SpecError when two (emitted name, spec key, what) entries share an emitted name."""
+    seen: dict[str, tuple[str, str]] = {}
+    for name, key, what in names:
+        if name in seen:
+            other_key, other_what = seen[name]
+            raise SpecError(module.spec_path, key,
+                            f"its {what} would be named {name!r} in the {target} target, like the "
+                            f"{other_what} of {other_key}; rename one of them")
+        seen[name] = (key, what)
+
+
+def kernel_keys(module: Module) -> list[tuple[str, Kernel]]:
+    """(spec key, kernel) in spec order: kernels[0], kernels[1], ..."""
+    return [(f"kernels[{i}]", k) for i, k in enumerate(module.kernels)]
+
+
+# --- runtime helpers: the `ir.Call` functions an emitted file defines when a kernel uses them ------
+
+HELPERS = ("exp_c", "exp_s", "exp_d")
+SERIES_TERMS = 6            # x^0 .. x^5; at |x| < 1e-2 the first omitted term is below 1e-20
+SERIES_LIMIT = "1e-2"       # a literal valid in every target: |x| below it uses the series
+
+HELPER_SERIES = {
+    "exp_c": lambda k: Fraction(1, factorial(2 * k)),
+    "exp_s": lambda k: Fraction(1, factorial(2 * k + 1)),
+    "exp_d": lambda k: Fraction(1, factorial(2 * k + 2)) - Fraction(1, factorial(2 * k + 3)),
+}
+
+HELPER_DOCS = {
+    "exp_c": "cos(t) for x < 0, cosh(t) for x > 0, t = sqrt(|x|): sum x^k/(2k)!",
+    "exp_s": "sin(t)/t for x < 0, sinh(t)/t for x > 0, t = sqrt(|x|): sum x^k/(2k+1)!",
+    "exp_d": "(exp_c(x) - exp_s(x))/x: sum x^j (1/(2j+2)! - 1/(2j+3)!)",
+}
+
+
+def helper_closed_form(name: str, cos: str, sin: str):
+    """The helper away from 0 as a tree over Var("x") and Var("t") = sqrt(|x|)."""
+    t, x = Var("t"), Var("x")
+    c, s = Call(cos, (t,)), Div(Call(sin, (t,)), t)
+    return {"exp_c": c, "exp_s": s, "exp_d": Div(Sum(((1, c), (-1, s))), x)}[name]
+
+
+def helper_series(name: str):
+    """The series near 0 in Horner form, c0 + x*(c1 + x*(...)), as a tree over Var("x")."""
+    coefs = [HELPER_SERIES[name](k) for k in range(SERIES_TERMS)]
+    node = Num(coefs[-1])
+    for c in reversed(coefs[:-1]):
+        node = Sum(((1, Num(c)), (1, Prod((Var("x"), node)))))
+    return node
+
+
+@dataclass(frozen=True)
+class HelperView:
+    name: str               # "exp_c"
+    doc: str
+    limit: str              # series for |x| below this literal
+    negative: str           # value for x < -limit, printed (t = sqrt(-x))
+    positive: str           # value for x > limit (t = sqrt(x))
+    series: str             # value near 0
+
+
+def helper_views(printer: Printer, used) -> tuple[HelperView, ...]:
+    """The helpers among `used` (function names a kernel printer recorded), in a fixed order."""
+    return tuple(HelperView(name, HELPER_DOCS[name], SERIES_LIMIT,
+                            printer.expr(helper_closed_form(name, "cos", "sin")),
+                            printer.expr(helper_closed_form(name, "cosh", "sinh")),
+                            printer.expr(helper_series(name)))
+                 for name in HELPERS if name in used)

@@ -34,18 +34,21 @@ def python_number(value: Fraction) -> str:
     return "(" + PythonCodePrinter().doprint(Rational(value.numerator, value.denominator)) + ")"
 
 
+def c_double(value: Fraction) -> str:
+    """A C double literal without a cast: 2.0, 0.5, (1.0/24.0)."""
+    from sympy import Rational
+    from sympy.printing.c import C99CodePrinter
+    if value.denominator == 1:
+        return f"{value.numerator}.0"
+    if value.denominator & (value.denominator - 1) == 0:
+        return repr(value.numerator / value.denominator)
+    return "(" + C99CodePrinter().doprint(Rational(value.numerator, value.denominator)) + ")"
+
+
 def c_number(real: str):
     """Number literals cast to the header's scalar type, so float builds stay in float."""
     def number(value: Fraction) -> str:
-        from sympy import Rational
-        from sympy.printing.c import C99CodePrinter
-        if value.denominator == 1:
-            text = f"{value.numerator}.0"
-        elif value.denominator & (value.denominator - 1) == 0:
-            text = repr(value.numerator / value.denominator)
-        else:
-            text = "(" + C99CodePrinter().doprint(Rational(value.numerator, value.denominator)) + ")"
-        return f"(({real}){text})"
+        return f"(({real}){c_double(value)})"
     return number
 
 

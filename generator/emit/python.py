@@ -2,11 +2,12 @@
 from __future__ import annotations
 
 from ..ir import Module
-from .base import Emitter
+from .base import Emitter, helper_views
 from .printer import Printer, Syntax, python_number
 
 PY_FUNCTIONS = {"sqrt": "math.sqrt", "cos": "math.cos", "sin": "math.sin", "cosh": "math.cosh",
-                "sinh": "math.sinh", "atan2": "math.atan2", "abs": "abs"}
+                "sinh": "math.sinh", "atan2": "math.atan2", "abs": "abs",
+                "exp_c": "_exp_c", "exp_s": "_exp_s", "exp_d": "_exp_d"}
 
 
 class PythonEmitter(Emitter):
@@ -20,7 +21,9 @@ class PythonEmitter(Emitter):
     def files(self, module: Module) -> dict[str, str]:
         printer = Printer(self.syntax())
         kernels = [self.kernel_view(module, k, printer, self.indent * 2) for k in module.kernels]
+        helpers = helper_views(printer, printer.used)
         imports = sorted({"math"} if printer.used - {"abs"} else set())
         text = self.render(self.template, banner=self.banner(module), module=module.name,
-                           types=self.type_rows(module), kernels=kernels, imports=imports)
+                           types=self.type_rows(module), kernels=kernels, imports=imports,
+                           helpers=helpers)
         return {f"{module.name}{self.suffix}": text}
