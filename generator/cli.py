@@ -137,9 +137,14 @@ def verify(specs, out, samples, seed):
         pipeline.write(b)
         rows = run_verify(b.module, b.out_dir, samples, seed)
         click.echo(f"{b.spec.display}: {len(rows)} checks against the dense reference")
-        click.echo(table(("kernel", "target", "samples", "max abs error", "tolerance", "status"),
+        notes = list(dict.fromkeys(r.note for r in rows if r.note))
+        mark = {n: f"[{i + 1}]" for i, n in enumerate(notes)}
+        click.echo(table(("kernel", "target", "samples", "max abs error", "tolerance", "status",
+                          "note"),
                          [(r.kernel, r.target, r.samples, f"{r.max_error:.3g}", f"{r.tolerance:.3g}",
-                           "ok" if r.ok else "MISMATCH") for r in rows]))
+                           "ok" if r.ok else "MISMATCH", mark.get(r.note, "")) for r in rows]))
+        for n in notes:
+            click.echo(f"  {mark[n]} {n}")
         bad += sum(not r.ok for r in rows)
     if bad:
         click.echo(f"{bad} check(s) disagree with the reference", err=True)
