@@ -167,9 +167,10 @@ def derive(model: Model, ks: KernelSpec, extra_types: dict) -> tuple[Kernel, tup
         kernel, new_types = versor.SPECIAL[op.kind](model, ks, op, variables, extra_types)
         return replace(kernel, arg_fields=fields), tuple(t for t in new_types if t is not None)
     stats = PairStats()
-    mv = prune(apply(alg, op, variables.mvs, stats), ks.grades)
+    full = prune(apply(alg, op, variables.mvs, stats), None)
+    mv = prune(full, ks.grades)
     if not mv:
-        raise model.spec.error(ks.key, zero_message(ks, op, stats))
+        raise model.spec.error(ks.key, zero_message(ks, op, stats, sorted({popcount(k) for k in full})))
     result, new_type = match_result(model, ks, mv, extra_types)
     formulas = tuple(formula(c, mv.get(c.bitmap, {}), variables) for c in result.components)
     kernel = Kernel(name=ks.name, op=ks.op, args=tuple(ks.args), result=result.name,
@@ -209,7 +210,13 @@ def match_result(model: Model, ks: KernelSpec, mv, extra: dict,
     return t, t
 
 
-def zero_message(ks: KernelSpec, op: Operation, stats: PairStats) -> str:
+def zero_message(ks: KernelSpec, op: Operation, stats: PairStats, grades_left=()) -> str:
+    """Why a kernel's result vanishes: the grade rule, null vectors, cancellation or `grades`."""
+    head = f"the result of {op.name}({', '.join(ks.args)}) is structurally zero"
+    if grades_left:
+        return (f"{head} after 'grades' = {list(ks.grades)}: the result only has grade"
+                f"{'s' if len(grades_left) > 1 else ''} {', '.join(map(str, grades_left))}. "
+                "Change 'grades' or remove the kernel")
     why = []
     if stats.grade_rule:
         why.append(f"{stats.grade_rule} dropped by the grade rule of {op.name} ({op.formula})")
@@ -218,11 +225,9 @@ def zero_message(ks: KernelSpec, op: Operation, stats: PairStats) -> str:
     rest = stats.pairs - stats.grade_rule - stats.metric_zero
     if rest:
         why.append(f"{rest} cancel each other")
-    if ks.grades is not None:
-        why.append(f"and 'grades' = {list(ks.grades)} keeps none of what is left")
-    detail = f" of {stats.pairs} blade pairs, " + "; ".join(why) if stats.pairs else ""
-    return (f"the result of {op.name}({', '.join(ks.args)}) is structurally zero:{detail}. "
-            "Remove the kernel or change its types")
+    plural = "pair" if stats.pairs == 1 else "pairs"
+    detail = f": of {stats.pairs} blade {plural}, " + "; ".join(why) if stats.pairs else ""
+    return f"{head}{detail}. Remove the kernel or change its types"
 
 
 def to_ring(kernel: Kernel):

@@ -49,7 +49,8 @@ def check_names(model: Model, inferred: tuple[tuple[TypeDef, str], ...] = ()) ->
         check_components(spec, t, key)
     for k in spec.kernels:
         if identifier_problem(k.name):
-            raise spec.error(k.key, f"the kernel name: {identifier_problem(k.name)}; set 'name'")
+            raise spec.error(k.key, f"the default kernel name cannot be used: "
+                                    f"{identifier_problem(k.name)}; give the kernel a 'name'")
     types = {t.name: t.key for t in spec.types} | {t.name: key for t, key in inferred}
     kernels = {k.name: k.key for k in spec.kernels}
     for target, rows, problem in (("C", c_names(spec.name, types, kernels), c_problem),
@@ -119,7 +120,8 @@ def suggest(name: str, options) -> str:
 def check_kernel(model: Model, k: KernelSpec) -> None:
     spec = model.spec
     if k.op not in CATALOGUE:
-        raise spec.error(f"{k.key}.op", f"unknown operation {shown(k.op)}{suggest(k.op, CATALOGUE)}; "
+        raise spec.error(f"{k.key}.op", f"unknown operation {shown(k.op)}"
+                                        f"{suggest(k.op, CATALOGUE)}; "
                                         f"operations: {', '.join(CATALOGUE)}")
     op = CATALOGUE[k.op]
     if len(k.args) != op.arity:
@@ -127,9 +129,11 @@ def check_kernel(model: Model, k: KernelSpec) -> None:
                                           f"{'s' if op.arity > 1 else ''}, got {len(k.args)}")
     for i, a in enumerate(k.args):
         if a not in model.types:
-            raise spec.error(f"{k.key}.args[{i}]", f"unknown type {shown(a)}{suggest(a, model.types)}")
+            raise spec.error(f"{k.key}.args[{i}]",
+                             f"unknown type {shown(a)}{suggest(a, model.types)}")
     if k.result is not None and k.result not in model.types:
-        raise spec.error(f"{k.key}.result", f"unknown type {shown(k.result)}{suggest(k.result, model.types)}")
+        raise spec.error(f"{k.key}.result",
+                         f"unknown type {shown(k.result)}{suggest(k.result, model.types)}")
     for key, _ in k.options:
         if k.op != "up":
             raise spec.error(f"{k.key}.{key}", f"key {key!r} only applies to op 'up'")

@@ -47,6 +47,10 @@ PY_BUILTINS = frozenset(n for n in dir(builtins) if not n.startswith("_")) | fro
     "exit quit help copyright credits license".split())     # the same with or without `site`
 # module-level tables of every emitted Python module
 PY_GLOBALS = ("TYPES", "KERNELS")
+# what NAME.h declares for itself after the prefix (emit/c.py): macros, typedef, math helpers
+C_OWN = {"H": "the include guard", "REAL": "the scalar type macro", "real": "the scalar typedef",
+         "RESTRICT": "the restrict macro"} | {f: f"the math helper {f}" for f in (
+             "sqrt", "cos", "sin", "cosh", "sinh", "abs", "atan2", "exp_c", "exp_s", "exp_d")}
 # NAME.py must not shadow a module that code next to it imports
 PY_MODULES = frozenset(sys.stdlib_module_names) | frozenset("numpy numba sympy scipy".split())
 
@@ -112,7 +116,7 @@ def python_problem(ident: str) -> str | None:
 
 def c_names(algebra: str, types: dict, kernels: dict) -> list[tuple[str, str, str]]:
     """(identifier, key, what) for every global C name; `types`/`kernels` map name -> key."""
-    rows = [(f"{algebra}_real", "algebra.name", "the scalar typedef")]
+    rows = [(f"{algebra}_{name}", "algebra.name", what) for name, what in C_OWN.items()]
     rows += [(f"{algebra}_{t}", key, f"type {t!r}") for t, key in types.items()]
     for k, key in kernels.items():
         rows += [(f"{algebra}_{k}", key, f"kernel {k!r}"),

@@ -16,9 +16,11 @@ budget (the estimate bounds the real derivation, and --max-terms moves the limit
 """
 from __future__ import annotations
 
+import ast
 import hashlib
 import json
 import os
+import shutil
 import subprocess
 import sys
 import textwrap
@@ -72,7 +74,8 @@ def snapshot(root: Path) -> dict:
     out = {}
     for p in sorted(root.rglob("*")):
         st_ = p.lstat()
-        out[p.relative_to(root).as_posix()] = (None if p.is_dir() else p.read_bytes(), st_.st_mtime_ns)
+        content = None if p.is_dir() else p.read_bytes()
+        out[p.relative_to(root).as_posix()] = (content, st_.st_mtime_ns)
     return out
 
 
@@ -261,7 +264,8 @@ def test_symlinked_spec_directory_escape_is_refused(tmp_path, monkeypatch):
     (work / "specs").symlink_to(outside, target_is_directory=True)
     before = snapshot(tmp_path)
     result = invoke(["build", "specs/drone.toml"], work, monkeypatch)
-    assert_refused(result, "Error: specs/drone.toml:13: output.dir: ", ["outside the current directory"])
+    assert_refused(result, "Error: specs/drone.toml:13: output.dir: ",
+                   ["outside the current directory"])
     assert snapshot(tmp_path) == before
 
 
@@ -285,7 +289,8 @@ def test_dir_inside_the_working_tree_is_allowed(tmp_path, monkeypatch):
 def test_out_overrides_an_escaping_dir(tmp_path, monkeypatch):
     work = tmp_path / "work"
     _drone(work, "drone.toml", "../../elsewhere")
-    result = invoke(["build", "drone.toml", "--out", str(tmp_path / "chosen"), "-q"], work, monkeypatch)
+    result = invoke(["build", "drone.toml", "--out", str(tmp_path / "chosen"), "-q"], work,
+                    monkeypatch)
     assert result.exit_code == 0, result.output
     assert (tmp_path / "chosen" / "drone.py").is_file()
 
@@ -410,6 +415,23 @@ def test_max_terms_moves_the_limit(tmp_path, monkeypatch):
     assert again.exit_code == 0, "the default budget comes back for the next command"
 
 
+@pytest.mark.parametrize("command", ["build", "verify", "check", "diff", "show"])
+def test_every_deriving_command_takes_max_terms(command, tmp_path, monkeypatch):
+    (tmp_path / "s.toml").write_text(_full_product(3))
+    args = [command, "s.toml"] + ([] if command == "show" else ["--out", "out"])
+    result = invoke([*args, "--max-terms", "10"], tmp_path, monkeypatch)
+    assert_refused(result, "Error: s.toml:7: kernels[0]: ", ["above the budget of 10"])
+
+
+def test_two_specs_for_one_output_directory(tmp_path, monkeypatch):
+    """Both specs are valid, but their files would overwrite each other: nothing is written."""
+    _drone(tmp_path, "a.toml", None)
+    _drone(tmp_path, "b.toml", None)
+    result = invoke(["build", "a.toml", "b.toml", "--out", "out"], tmp_path, monkeypatch)
+    assert_refused(result, "Error: b.toml:2: algebra.name: ", ["would overwrite the output of a.toml"])
+    assert not (tmp_path / "out").exists()
+
+
 def test_max_terms_must_be_positive(tmp_path, monkeypatch):
     (tmp_path / "s.toml").write_text(_full_product(2))
     result = invoke(["build", "s.toml", "--max-terms", "0"], tmp_path, monkeypatch)
@@ -419,7 +441,7 @@ def test_max_terms_must_be_positive(tmp_path, monkeypatch):
 def test_diagonal_estimate_is_the_pair_count(tmp_path):
     m = model.build(_spec(tmp_path, _full_product(5)))
     (_, _, terms), = budget.estimate(m)
-    assert terms == (2 ** 5) ** 2
+    assert terms == (2 ** 5) ** 2 + budget.KERNEL
 
 
 SMALL_METRICS = [[1, 1, 1, 1], [0, 1, 1, -1],
@@ -451,3 +473,72 @@ def test_non_orthogonal_metric_costs_more(tmp_path):
     diagonal = model.build(_spec(tmp_path, _full_product(4)))
     dense = model.build(_spec(tmp_path, _full_product(4, str(SMALL_METRICS[3]))))
     assert budget.estimate(dense)[0][2] > budget.estimate(diagonal)[0][2]
+
+
+# --- names at the edge of what is allowed ----------------------------------------------------
+
+EDGE = """\
+# legal names that sit next to keywords, macros and the emitters' own names
+[algebra]
+name = "sorter"
+basis = ["o", "x", "y"]
+metric = [0, 1, 1]
+blades = ["x^o", "y^x"]
+[types.classy]
+grades = [0, 2]
+[types.int8]
+grades = [1]
+[types.t_]
+grades = [3]
+[[kernels]]
+op = "sandwich"
+args = ["classy", "int8"]
+name = "returns"
+[[kernels]]
+op = "outer"
+args = ["int8", "int8"]
+name = "delete_"
+[[kernels]]
+op = "geometric"
+args = ["classy", "t_"]
+name = "typesx"
+"""
+
+
+def test_edge_names_build_code_that_only_does_arithmetic(tmp_path, monkeypatch):
+    """Near-keyword names are accepted, and what they produce parses and compiles: the pure
+    Python module runs nothing at import but its definitions, the header compiles as C and C++."""
+    (tmp_path / "s.toml").write_text(EDGE)
+    result = invoke(["build", "s.toml", "--out", "out", "-q"], tmp_path, monkeypatch)
+    assert result.exit_code == 0, result.output
+    tree = ast.parse((tmp_path / "out" / "sorter.py").read_text())
+    kinds = {type(node).__name__ for node in tree.body}
+    assert kinds <= {"Expr", "Import", "Assign", "FunctionDef"}, kinds
+    assert all(a.name == "math" for node in tree.body if isinstance(node, ast.Import)
+               for a in node.names)
+    ast.parse((tmp_path / "out" / "sorter_numba.py").read_text())
+    if shutil.which("gcc") is None or shutil.which("g++") is None:
+        pytest.skip("gcc/g++ not installed: the header was not compiled")
+    (tmp_path / "use.c").write_text('#include "out/sorter.h"\nint main(void) { return 0; }\n')
+    for compiler, std in (("gcc", "-std=c99"), ("g++", "-std=c++17")):
+        lang = ["-x", "c++"] if compiler == "g++" else []
+        done = subprocess.run([compiler, std, *lang, "-Wall", "-Werror", "-fsyntax-only", "use.c"],
+                              cwd=tmp_path, capture_output=True, text=True)
+        assert done.returncode == 0, done.stderr
+
+
+def test_spec_path_in_banners_is_escaped(tmp_path, monkeypatch):
+    """The spec's path is the one piece of free text that reaches the emitted comments."""
+    weird = tmp_path / "ev*" / '*il\n"""x\\y.toml'      # "ev*/*il...": both */ and /*
+    weird.parent.mkdir()
+    weird.write_text(DRONE.replace("[targets.python]\n", ""))
+    result = invoke(["build", str(weird.relative_to(tmp_path)), "--out", "out", "-q"], tmp_path,
+                    monkeypatch)
+    assert result.exit_code == 0, result.output
+    for name in ("drone.py", "drone_numba.py"):
+        text = (tmp_path / "out" / name).read_text()
+        ast.parse(text)
+        assert text.splitlines()[0].startswith("# Generated by bladesmith from ev")
+    header = (tmp_path / "out" / "drone.h").read_text().splitlines()[0]
+    assert header.startswith("/* Generated") and header.endswith("*/")
+    assert header.count("*/") == 1 and header.count("/*") == 1

@@ -146,7 +146,8 @@ def test_spec_shaped_documents(doc, data):
 
 def _paths(node, prefix=()):
     """Every (container path, key or index) in a parsed document."""
-    items = node.items() if isinstance(node, dict) else enumerate(node) if isinstance(node, list) else ()
+    items = node.items() if isinstance(node, dict) else enumerate(node) if isinstance(
+        node, list) else ()
     for k, v in items:
         yield prefix, k
         yield from _paths(v, prefix + (k,))
@@ -210,7 +211,8 @@ def edited_example(draw) -> str:
             lines[i], lines[j] = lines[j], lines[i]
         elif action == "insert":
             pos = draw(st.integers(0, len(lines[i])))
-            lines[i] = lines[i][:pos] + draw(st.sampled_from(list("[]{}\"'=,.#\\\n\t\x00\u0435 0a"))) + lines[i][pos:]
+            char = draw(st.sampled_from(list("[]{}\"'=,.#\\\n\t\x00\u0435 0a")))
+            lines[i] = lines[i][:pos] + char + lines[i][pos:]
     return "\n".join(lines) + "\n"
 
 
