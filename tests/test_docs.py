@@ -38,3 +38,17 @@ def test_generated_output_is_current(path, monkeypatch):
         assert committed.read_text() == text, f"{committed} is stale: run `bladesmith build specs/*.toml`"
     stray = {p.name for p in out.iterdir() if p.is_file()} - set(files)
     assert not stray, f"files in {out} that no build writes: {sorted(stray)}"
+
+
+def test_first_spec_from_the_readme_builds_and_verifies(tmp_path):
+    # a spec written from the README alone: its "A first spec" example, as a new user copies it
+    from click.testing import CliRunner
+    from generator.cli import main
+    readme = (ROOT / "README.md").read_text()
+    section = readme.split("## A first spec", 1)[1].split("\n## ", 1)[0]
+    toml = re.search(r"```toml\n(.+?)\n```", section, re.S).group(1)
+    (tmp_path / "mine.toml").write_text(toml)
+    result = CliRunner().invoke(main, ["verify", str(tmp_path / "mine.toml"), "--out",
+                                       str(tmp_path / "out"), "--samples", "16"])
+    assert result.exit_code == 0, result.output
+    assert "MISMATCH" not in result.output and "compose" in result.output
