@@ -1,7 +1,8 @@
 """Run the compiled targets for `verify`: the numba module, and the C header through ctypes.
 
 C: a small generated wrapper (templates/c/wrapper.c.j2) includes the emitted header from the
-output directory and exports each `NAME_<kernel>_n` with C linkage; it is compiled with the
+output directory and exports each `NAME_<kernel>_n` (and each sandwich's `NAME_<kernel>_fixed_n`,
+taking its versor by pointer) with C linkage; it is compiled with the
 system C compiler (`$CC`, else `cc`, `gcc` or `clang` on PATH) into a shared library in a
 temporary directory (never the output directory), loaded with ctypes and called on numpy
 buffers: an array of structs is just a contiguous (N, k) array of the scalar type, which the
@@ -36,6 +37,7 @@ FLOAT_REL = 4 * FLOAT_EPS
 FLOAT_NOTE = (f"float32: tolerance = 4 x eps32 ({FLOAT_EPS:.3g}) x (1 + max |reference|) x terms "
               "per component, or 4 x the change eps32 input perturbations cause in the double "
               "build where that is larger")
+FIXED_NOTE = "sandwich: one versor (a[i]) on all N rows of b, row i compared"
 COMPILERS = ("cc", "gcc", "clang")
 C_FLAGS = ("-std=c99", "-O2", "-fPIC", "-shared", "-Wall", "-Wextra", "-pedantic")
 CXX_FLAGS = ("-x", "c++", "-std=c++17", "-O2", "-fPIC", "-shared", "-Wall", "-Wextra")
@@ -83,9 +85,11 @@ def wrapper_source(module: Module) -> str:
     wrappers = []
     for i, k in enumerate(module.kernels):
         args = list(zip(k.arg_names, k.args))
-        params = [f"const {p}_{t} *{n}" for n, t in args] + [f"{p}_{k.result} *out"]
+        params = ", ".join([f"const {p}_{t} *{n}" for n, t in args] + [f"{p}_{k.result} *out"])
         call = f"{p}_{k.name}_n(n, {', '.join(n for n, _ in args)}, out)"
-        wrappers.append(Wrapper(f"{prefix}{i}", ", ".join(params), call))
+        wrappers.append(Wrapper(f"{prefix}{i}", params, call))
+        if k.one_to_many is not None:
+            wrappers.append(Wrapper(f"{prefix}fixed_{i}", params, f"{p}_{k.name}_fixed_n(*a, n, b, out)"))
     return environment().get_template("c/wrapper.c.j2").render(
         module=p, header=f"{p}.h", prefix=prefix, types=[t.name for t in module.types],
         wrappers=wrappers)
@@ -114,16 +118,36 @@ class CLibrary:
                                   f"{len(t.components)} x {real}: it cannot alias an array")
         return real
 
-    def run(self, kernel: Kernel, inputs: list[np.ndarray]) -> np.ndarray:
-        index = self.module.kernels.index(kernel)
-        fn = getattr(self.lib, f"{self.prefix}{index}")
+    def function(self, kernel: Kernel, kind: str = ""):
+        """The exported `_n` loop of a kernel (kind "fixed_": its `_fixed_n`), ready to call."""
+        fn = getattr(self.lib, f"{self.prefix}{kind}{self.module.kernels.index(kernel)}")
         fn.restype = None
-        fn.argtypes = [ctypes.c_size_t] + [ctypes.c_void_p] * (len(inputs) + 1)
+        fn.argtypes = [ctypes.c_size_t] + [ctypes.c_void_p] * (len(kernel.arg_names) + 1)
+        return fn
+
+    def _buffers(self, kernel: Kernel, inputs: list[np.ndarray]):
         arrays = [np.ascontiguousarray(x, dtype=self.dtype) for x in inputs]
         n = arrays[0].shape[0]
-        out = np.full((n, len(self.module.type(kernel.result).components)), np.nan, self.dtype)
-        fn(n, *(a.ctypes.data for a in arrays), out.ctypes.data)
+        return arrays, np.full((n, len(self.module.type(kernel.result).components)), np.nan,
+                               self.dtype)
+
+    def run(self, kernel: Kernel, inputs: list[np.ndarray]) -> np.ndarray:
+        arrays, out = self._buffers(kernel, inputs)
+        self.function(kernel)(out.shape[0], *(a.ctypes.data for a in arrays), out.ctypes.data)
         return out.astype(np.float64)
+
+    def run_fixed(self, kernel: Kernel, inputs: list[np.ndarray]) -> np.ndarray | None:
+        """Row i from `NAME_<kernel>_fixed_n(a[i], n, b, out)` over all n rows of b; None for a
+        kernel without one (not a sandwich)."""
+        if kernel.one_to_many is None:
+            return None
+        fn, ((a, b), out) = self.function(kernel, "fixed_"), self._buffers(kernel, inputs)
+        rows = []
+        for i in range(len(a)):
+            out[:] = np.nan
+            fn(len(b), a[i:].ctypes.data, b.ctypes.data, out.ctypes.data)
+            rows.append(out[i].astype(np.float64))
+        return np.array(rows).reshape(out.shape)
 
 
 def compile_library(module: Module, out_dir: Path, real: str | None = None,
@@ -153,9 +177,11 @@ def c_runners(module: Module, out_dir: Path):
     """The C target through the compiled `_n` loops; a float build is also compiled as double."""
     lib = compile_library(module, out_dir)
     if lib.real == 8:
-        return [("c", lib.run, DOUBLE_REL, "")]
+        return [("c", lib.run, DOUBLE_REL, ""), ("c fixed_n", lib.run_fixed, DOUBLE_REL, FIXED_NOTE)]
     exact = compile_library(module, out_dir, real="double")
-    return [("c (float)", lib.run, float_tolerance(exact), FLOAT_NOTE)]
+    rel = float_tolerance(exact)
+    return [("c (float)", lib.run, rel, FLOAT_NOTE),
+            ("c (float) fixed_n", lib.run_fixed, rel, FLOAT_NOTE)]
 
 
 def float_tolerance(double: CLibrary):
@@ -214,6 +240,13 @@ def numba_runners(module: Module, out_dir: Path):
         return np.array([fn(*single_row(inputs, i))[i if len(inputs) > 1 else 0]
                          for i in range(inputs[0].shape[0])])
 
+    def one_versor(kernel, inputs):
+        if kernel.one_to_many is None:
+            return None
+        fn = getattr(emitted, f"{kernel.name}_batch")
+        a, b = inputs
+        return np.array([fn(a[i] if i % 2 else a[i:i + 1], b)[i] for i in range(len(a))])
+
     def into(kernel, inputs):
         out = np.full((inputs[0].shape[0], len(module.type(kernel.result).components)), np.nan)
         got = getattr(emitted, f"{kernel.name}_batch")(*inputs, out=out)
@@ -221,7 +254,7 @@ def numba_runners(module: Module, out_dir: Path):
 
     return [("numba", scalar, DOUBLE_REL, ""), ("numba batch", batch, DOUBLE_REL, ""),
             ("numba broadcast", broadcast, DOUBLE_REL, "one element (k,) or (1, k) against N"),
-            ("numba out=", into, DOUBLE_REL, "")]
+            ("numba one versor", one_versor, DOUBLE_REL, FIXED_NOTE), ("numba out=", into, DOUBLE_REL, "")]
 
 
 def single_row(inputs: list[np.ndarray], i: int) -> list[np.ndarray]:

@@ -9,7 +9,9 @@ this file). Division by zero gives inf or nan here instead of raising.
 array of shape (N, k) for a type of k components, or a single element, shape (k,) or (1, k),
 that is used for every row. It returns an (N, k) array of the result type, float32 when every
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
-dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`.
+dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
+sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
+and each row costs only that matrix applied to it.
 
 Types (components in order):
     motor: s, e01, e02, e03, e12, e31, e23, e0123
@@ -74,6 +76,8 @@ KERNELS = {
 }
 
 _FLOATS = (np.dtype(np.float64), np.dtype(np.float32))
+_F64 = _FLOATS[0]
+_ARRAY = np.ndarray
 
 
 def _describe(x):
@@ -86,6 +90,12 @@ def _describe(x):
 
 def _rows(x, fn, arg, k, type_name):
     """`x` as an (N, k) array; a ValueError naming the argument and the shape it needs."""
+    if type(x) is _ARRAY and x.dtype in _FLOATS and x.flags.c_contiguous:   # the short path
+        shape = x.shape
+        if len(shape) == 2 and shape[1] == k:
+            return x
+        if shape == (k,):
+            return x.reshape(1, k)
     if isinstance(x, np.ndarray) and x.ndim == 1 and x.shape[0] == k:
         x = x.reshape(1, k)
     if (not isinstance(x, np.ndarray) or x.dtype not in _FLOATS or x.ndim != 2
@@ -98,10 +108,16 @@ def _rows(x, fn, arg, k, type_name):
 
 def _length(fn, a, b):
     """The N of two arguments: the same N, or one of them a single element (broadcast)."""
-    if a.shape[0] != b.shape[0] and a.shape[0] != 1 and b.shape[0] != 1:
-        raise ValueError(f"{fn}: 'a' has {a.shape[0]} rows and 'b' has {b.shape[0]}; give both "
+    na, nb = a.shape[0], b.shape[0]
+    if na != nb and na != 1 and nb != 1:
+        raise ValueError(f"{fn}: 'a' has {na} rows and 'b' has {nb}; give both "
                          "the same number of rows, or one of them a single element")
-    return b.shape[0] if a.shape[0] == 1 else a.shape[0]
+    return nb if na == 1 else na
+
+
+def _dtype(a, b):
+    """float32 when both arguments are float32, else float64."""
+    return a.dtype if a.dtype == b.dtype else _F64
 
 
 def _result(out, fn, n, k, type_name, dtype):
@@ -196,39 +212,159 @@ def compose(a, b):
 
 
 @njit(cache=True, error_model="numpy")
-def _compose_each(a, b, out, n):
+def _compose_each(a, b, out):
     """compose of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[8*i], out[8*i + 1], out[8*i + 2], out[8*i + 3], out[8*i + 4], out[8*i + 5],
-         out[8*i + 6], out[8*i + 7]) = compose(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]),
-            (b[8*i], b[8*i + 1], b[8*i + 2], b[8*i + 3], b[8*i + 4], b[8*i + 5], b[8*i + 6],
-             b[8*i + 7]))
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        b_s = b[8*i]
+        b_e01 = b[8*i + 1]
+        b_e02 = b[8*i + 2]
+        b_e03 = b[8*i + 3]
+        b_e12 = b[8*i + 4]
+        b_e31 = b[8*i + 5]
+        b_e23 = b[8*i + 6]
+        b_e0123 = b[8*i + 7]
+        # s
+        out[8*i] = a_s*b_s - a_e12*b_e12 - a_e31*b_e31 - a_e23*b_e23
+        # e01
+        out[8*i + 1] = (
+            a_s*b_e01 + a_e01*b_s - a_e02*b_e12 + a_e03*b_e31 + a_e12*b_e02 - a_e31*b_e03
+            - a_e23*b_e0123 - a_e0123*b_e23
+        )
+        # e02
+        out[8*i + 2] = (
+            a_s*b_e02 + a_e01*b_e12 + a_e02*b_s - a_e03*b_e23 - a_e12*b_e01 - a_e31*b_e0123
+            + a_e23*b_e03 - a_e0123*b_e31
+        )
+        # e03
+        out[8*i + 3] = (
+            a_s*b_e03 - a_e01*b_e31 + a_e02*b_e23 + a_e03*b_s - a_e12*b_e0123 + a_e31*b_e01
+            - a_e23*b_e02 - a_e0123*b_e12
+        )
+        # e12
+        out[8*i + 4] = a_s*b_e12 + a_e12*b_s + a_e31*b_e23 - a_e23*b_e31
+        # e31
+        out[8*i + 5] = a_s*b_e31 - a_e12*b_e23 + a_e31*b_s + a_e23*b_e12
+        # e23
+        out[8*i + 6] = a_s*b_e23 + a_e12*b_e31 - a_e31*b_e12 + a_e23*b_s
+        # e0123
+        out[8*i + 7] = (
+            a_s*b_e0123 + a_e01*b_e23 + a_e02*b_e31 + a_e03*b_e12 + a_e12*b_e03 + a_e31*b_e02
+            + a_e23*b_e01 + a_e0123*b_s
+        )
 
 
 @njit(cache=True, error_model="numpy")
-def _compose_one_a(a, b, out, n):
+def _compose_one_a(a, b, out):
     """compose of one `a` with each row of the other argument."""
-    t = (a[0], a[1], a[2], a[3], a[4], a[5], a[6], a[7])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    a_s = a[0]
+    a_e01 = a[1]
+    a_e02 = a[2]
+    a_e03 = a[3]
+    a_e12 = a[4]
+    a_e31 = a[5]
+    a_e23 = a[6]
+    a_e0123 = a[7]
     for i in range(n):
-        (out[8*i], out[8*i + 1], out[8*i + 2], out[8*i + 3], out[8*i + 4], out[8*i + 5],
-         out[8*i + 6], out[8*i + 7]) = compose(
-            t,
-            (b[8*i], b[8*i + 1], b[8*i + 2], b[8*i + 3], b[8*i + 4], b[8*i + 5], b[8*i + 6],
-             b[8*i + 7]))
+        b_s = b[8*i]
+        b_e01 = b[8*i + 1]
+        b_e02 = b[8*i + 2]
+        b_e03 = b[8*i + 3]
+        b_e12 = b[8*i + 4]
+        b_e31 = b[8*i + 5]
+        b_e23 = b[8*i + 6]
+        b_e0123 = b[8*i + 7]
+        # s
+        out[8*i] = a_s*b_s - a_e12*b_e12 - a_e31*b_e31 - a_e23*b_e23
+        # e01
+        out[8*i + 1] = (
+            a_s*b_e01 + a_e01*b_s - a_e02*b_e12 + a_e03*b_e31 + a_e12*b_e02 - a_e31*b_e03
+            - a_e23*b_e0123 - a_e0123*b_e23
+        )
+        # e02
+        out[8*i + 2] = (
+            a_s*b_e02 + a_e01*b_e12 + a_e02*b_s - a_e03*b_e23 - a_e12*b_e01 - a_e31*b_e0123
+            + a_e23*b_e03 - a_e0123*b_e31
+        )
+        # e03
+        out[8*i + 3] = (
+            a_s*b_e03 - a_e01*b_e31 + a_e02*b_e23 + a_e03*b_s - a_e12*b_e0123 + a_e31*b_e01
+            - a_e23*b_e02 - a_e0123*b_e12
+        )
+        # e12
+        out[8*i + 4] = a_s*b_e12 + a_e12*b_s + a_e31*b_e23 - a_e23*b_e31
+        # e31
+        out[8*i + 5] = a_s*b_e31 - a_e12*b_e23 + a_e31*b_s + a_e23*b_e12
+        # e23
+        out[8*i + 6] = a_s*b_e23 + a_e12*b_e31 - a_e31*b_e12 + a_e23*b_s
+        # e0123
+        out[8*i + 7] = (
+            a_s*b_e0123 + a_e01*b_e23 + a_e02*b_e31 + a_e03*b_e12 + a_e12*b_e03 + a_e31*b_e02
+            + a_e23*b_e01 + a_e0123*b_s
+        )
 
 
 @njit(cache=True, error_model="numpy")
-def _compose_one_b(a, b, out, n):
+def _compose_one_b(a, b, out):
     """compose of one `b` with each row of the other argument."""
-    t = (b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    b_s = b[0]
+    b_e01 = b[1]
+    b_e02 = b[2]
+    b_e03 = b[3]
+    b_e12 = b[4]
+    b_e31 = b[5]
+    b_e23 = b[6]
+    b_e0123 = b[7]
     for i in range(n):
-        (out[8*i], out[8*i + 1], out[8*i + 2], out[8*i + 3], out[8*i + 4], out[8*i + 5],
-         out[8*i + 6], out[8*i + 7]) = compose(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]),
-            t)
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        # s
+        out[8*i] = a_s*b_s - a_e12*b_e12 - a_e31*b_e31 - a_e23*b_e23
+        # e01
+        out[8*i + 1] = (
+            a_s*b_e01 + a_e01*b_s - a_e02*b_e12 + a_e03*b_e31 + a_e12*b_e02 - a_e31*b_e03
+            - a_e23*b_e0123 - a_e0123*b_e23
+        )
+        # e02
+        out[8*i + 2] = (
+            a_s*b_e02 + a_e01*b_e12 + a_e02*b_s - a_e03*b_e23 - a_e12*b_e01 - a_e31*b_e0123
+            + a_e23*b_e03 - a_e0123*b_e31
+        )
+        # e03
+        out[8*i + 3] = (
+            a_s*b_e03 - a_e01*b_e31 + a_e02*b_e23 + a_e03*b_s - a_e12*b_e0123 + a_e31*b_e01
+            - a_e23*b_e02 - a_e0123*b_e12
+        )
+        # e12
+        out[8*i + 4] = a_s*b_e12 + a_e12*b_s + a_e31*b_e23 - a_e23*b_e31
+        # e31
+        out[8*i + 5] = a_s*b_e31 - a_e12*b_e23 + a_e31*b_s + a_e23*b_e12
+        # e23
+        out[8*i + 6] = a_s*b_e23 + a_e12*b_e31 - a_e31*b_e12 + a_e23*b_s
+        # e0123
+        out[8*i + 7] = (
+            a_s*b_e0123 + a_e01*b_e23 + a_e02*b_e31 + a_e03*b_e12 + a_e12*b_e03 + a_e31*b_e02
+            + a_e23*b_e01 + a_e0123*b_s
+        )
 
 
 def compose_batch(a, b, out=None):
@@ -240,13 +376,13 @@ def compose_batch(a, b, out=None):
     a = _rows(a, "compose_batch", "a", 8, "motor")
     b = _rows(b, "compose_batch", "b", 8, "motor")
     n = _length("compose_batch", a, b)
-    out = _result(out, "compose_batch", n, 8, "motor", np.result_type(a.dtype, b.dtype))
+    out = _result(out, "compose_batch", n, 8, "motor", _dtype(a, b))
     if a.shape[0] == b.shape[0]:
-        _compose_each(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _compose_each(a, b, out)
     elif a.shape[0] == 1:
-        _compose_one_a(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _compose_one_a(a, b, out)
     else:
-        _compose_one_b(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _compose_one_b(a, b, out)
     return out
 
 
@@ -294,34 +430,157 @@ def move_point(a, b):
 
 
 @njit(cache=True, error_model="numpy")
-def _move_point_each(a, b, out, n):
+def _move_point_each(a, b, out):
     """move_point of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = move_point(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]),
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        b_e021 = b[4*i]
+        b_e013 = b[4*i + 1]
+        b_e032 = b[4*i + 2]
+        b_e123 = b[4*i + 3]
+        q_0 = a_e12*a_e12
+        q_1 = a_e12*a_e23
+        q_2 = a_e12*a_e31
+        q_3 = a_e23*a_e23
+        q_4 = a_e31*a_e23
+        q_5 = a_e31*a_e31
+        q_6 = a_s*a_e12
+        q_7 = a_s*a_e23
+        q_8 = a_s*a_e31
+        q_9 = a_s*a_s
+        m0_e021 = q_9 + q_0 - q_5 - q_3
+        m0_e013 = 2*(-q_7 + q_2)
+        m0_e032 = 2*(q_8 + q_1)
+        m0_e123 = 2*(-a_s*a_e03 - a_e01*a_e31 + a_e02*a_e23 - a_e12*a_e0123)
+        m1_e021 = 2*(q_7 + q_2)
+        m1_e013 = q_9 - q_0 + q_5 - q_3
+        m1_e032 = 2*(-q_6 + q_4)
+        m1_e123 = 2*(-a_s*a_e02 + a_e01*a_e12 - a_e03*a_e23 - a_e31*a_e0123)
+        m2_e021 = 2*(-q_8 + q_1)
+        m2_e013 = 2*(q_6 + q_4)
+        m2_e032 = q_9 - q_0 - q_5 + q_3
+        m2_e123 = 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123)
+        m3_e123 = q_9 + q_0 + q_5 + q_3
+        # e021
+        out[4*i] = m0_e021*b_e021 + m0_e013*b_e013 + m0_e032*b_e032 + m0_e123*b_e123
+        # e013
+        out[4*i + 1] = m1_e021*b_e021 + m1_e013*b_e013 + m1_e032*b_e032 + m1_e123*b_e123
+        # e032
+        out[4*i + 2] = m2_e021*b_e021 + m2_e013*b_e013 + m2_e032*b_e032 + m2_e123*b_e123
+        # e123
+        out[4*i + 3] = m3_e123*b_e123
 
 
 @njit(cache=True, error_model="numpy")
-def _move_point_one_a(a, b, out, n):
-    """move_point of one `a` with each row of the other argument."""
-    t = (a[0], a[1], a[2], a[3], a[4], a[5], a[6], a[7])
+def _move_point_one_a(a, b, out):
+    """move_point of one `a` with each row of `b`: the matrix of `a` once (31 multiplies, 27 adds),
+    then 13 multiplies, 9 adds per row."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    a_s = a[0]
+    a_e01 = a[1]
+    a_e02 = a[2]
+    a_e03 = a[3]
+    a_e12 = a[4]
+    a_e31 = a[5]
+    a_e23 = a[6]
+    a_e0123 = a[7]
+    q_0 = a_e12*a_e12
+    q_1 = a_e12*a_e23
+    q_2 = a_e12*a_e31
+    q_3 = a_e23*a_e23
+    q_4 = a_e31*a_e23
+    q_5 = a_e31*a_e31
+    q_6 = a_s*a_e12
+    q_7 = a_s*a_e23
+    q_8 = a_s*a_e31
+    q_9 = a_s*a_s
+    m0_e021 = q_9 + q_0 - q_5 - q_3
+    m0_e013 = 2*(-q_7 + q_2)
+    m0_e032 = 2*(q_8 + q_1)
+    m0_e123 = 2*(-a_s*a_e03 - a_e01*a_e31 + a_e02*a_e23 - a_e12*a_e0123)
+    m1_e021 = 2*(q_7 + q_2)
+    m1_e013 = q_9 - q_0 + q_5 - q_3
+    m1_e032 = 2*(-q_6 + q_4)
+    m1_e123 = 2*(-a_s*a_e02 + a_e01*a_e12 - a_e03*a_e23 - a_e31*a_e0123)
+    m2_e021 = 2*(-q_8 + q_1)
+    m2_e013 = 2*(q_6 + q_4)
+    m2_e032 = q_9 - q_0 - q_5 + q_3
+    m2_e123 = 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123)
+    m3_e123 = q_9 + q_0 + q_5 + q_3
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = move_point(
-            t,
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        b_e021 = b[4*i]
+        b_e013 = b[4*i + 1]
+        b_e032 = b[4*i + 2]
+        b_e123 = b[4*i + 3]
+        # e021
+        out[4*i] = m0_e021*b_e021 + m0_e013*b_e013 + m0_e032*b_e032 + m0_e123*b_e123
+        # e013
+        out[4*i + 1] = m1_e021*b_e021 + m1_e013*b_e013 + m1_e032*b_e032 + m1_e123*b_e123
+        # e032
+        out[4*i + 2] = m2_e021*b_e021 + m2_e013*b_e013 + m2_e032*b_e032 + m2_e123*b_e123
+        # e123
+        out[4*i + 3] = m3_e123*b_e123
 
 
 @njit(cache=True, error_model="numpy")
-def _move_point_one_b(a, b, out, n):
+def _move_point_one_b(a, b, out):
     """move_point of one `b` with each row of the other argument."""
-    t = (b[0], b[1], b[2], b[3])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    b_e021 = b[0]
+    b_e013 = b[1]
+    b_e032 = b[2]
+    b_e123 = b[3]
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = move_point(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]),
-            t)
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        q_0 = a_e12*a_e12
+        q_1 = a_e12*a_e23
+        q_2 = a_e12*a_e31
+        q_3 = a_e23*a_e23
+        q_4 = a_e31*a_e23
+        q_5 = a_e31*a_e31
+        q_6 = a_s*a_e12
+        q_7 = a_s*a_e23
+        q_8 = a_s*a_e31
+        q_9 = a_s*a_s
+        m0_e021 = q_9 + q_0 - q_5 - q_3
+        m0_e013 = 2*(-q_7 + q_2)
+        m0_e032 = 2*(q_8 + q_1)
+        m0_e123 = 2*(-a_s*a_e03 - a_e01*a_e31 + a_e02*a_e23 - a_e12*a_e0123)
+        m1_e021 = 2*(q_7 + q_2)
+        m1_e013 = q_9 - q_0 + q_5 - q_3
+        m1_e032 = 2*(-q_6 + q_4)
+        m1_e123 = 2*(-a_s*a_e02 + a_e01*a_e12 - a_e03*a_e23 - a_e31*a_e0123)
+        m2_e021 = 2*(-q_8 + q_1)
+        m2_e013 = 2*(q_6 + q_4)
+        m2_e032 = q_9 - q_0 - q_5 + q_3
+        m2_e123 = 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123)
+        m3_e123 = q_9 + q_0 + q_5 + q_3
+        # e021
+        out[4*i] = m0_e021*b_e021 + m0_e013*b_e013 + m0_e032*b_e032 + m0_e123*b_e123
+        # e013
+        out[4*i + 1] = m1_e021*b_e021 + m1_e013*b_e013 + m1_e032*b_e032 + m1_e123*b_e123
+        # e032
+        out[4*i + 2] = m2_e021*b_e021 + m2_e013*b_e013 + m2_e032*b_e032 + m2_e123*b_e123
+        # e123
+        out[4*i + 3] = m3_e123*b_e123
 
 
 def move_point_batch(a, b, out=None):
@@ -333,13 +592,13 @@ def move_point_batch(a, b, out=None):
     a = _rows(a, "move_point_batch", "a", 8, "motor")
     b = _rows(b, "move_point_batch", "b", 4, "point")
     n = _length("move_point_batch", a, b)
-    out = _result(out, "move_point_batch", n, 4, "point", np.result_type(a.dtype, b.dtype))
+    out = _result(out, "move_point_batch", n, 4, "point", _dtype(a, b))
     if a.shape[0] == b.shape[0]:
-        _move_point_each(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _move_point_each(a, b, out)
     elif a.shape[0] == 1:
-        _move_point_one_a(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _move_point_one_a(a, b, out)
     else:
-        _move_point_one_b(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _move_point_one_b(a, b, out)
     return out
 
 
@@ -421,37 +680,292 @@ def move_line(a, b):
 
 
 @njit(cache=True, error_model="numpy")
-def _move_line_each(a, b, out, n):
+def _move_line_each(a, b, out):
     """move_line of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[6*i], out[6*i + 1], out[6*i + 2], out[6*i + 3], out[6*i + 4],
-         out[6*i + 5]) = move_line(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]),
-            (b[6*i], b[6*i + 1], b[6*i + 2], b[6*i + 3], b[6*i + 4], b[6*i + 5]))
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        b_e01 = b[6*i]
+        b_e02 = b[6*i + 1]
+        b_e03 = b[6*i + 2]
+        b_e12 = b[6*i + 3]
+        b_e31 = b[6*i + 4]
+        b_e23 = b[6*i + 5]
+        q_0 = a_e01*a_e12
+        q_1 = a_e01*a_e23
+        q_2 = a_e01*a_e31
+        q_3 = a_e02*a_e12
+        q_4 = a_e02*a_e23
+        q_5 = a_e02*a_e31
+        q_6 = a_e03*a_e12
+        q_7 = a_e03*a_e23
+        q_8 = a_e03*a_e31
+        q_9 = a_e12*a_e0123
+        q_10 = a_e12*a_e12
+        q_11 = a_e12*a_e23
+        q_12 = a_e12*a_e31
+        q_13 = a_e23*a_e0123
+        q_14 = a_e23*a_e23
+        q_15 = a_e31*a_e0123
+        q_16 = a_e31*a_e23
+        q_17 = a_e31*a_e31
+        q_18 = a_s*a_e01
+        q_19 = a_s*a_e0123
+        q_20 = a_s*a_e02
+        q_21 = a_s*a_e03
+        q_22 = a_s*a_e12
+        q_23 = a_s*a_e23
+        q_24 = a_s*a_e31
+        q_25 = a_s*a_s
+        m0_e01 = q_25 - q_10 - q_17 + q_14
+        m0_e02 = 2*(q_22 + q_16)
+        m0_e03 = 2*(-q_24 + q_11)
+        m0_e12 = 2*(-q_20 + q_0 + q_7 + q_15)
+        m0_e31 = 2*(q_21 + q_2 + q_4 - q_9)
+        m0_e23 = 2*(-q_19 + q_1 - q_5 - q_6)
+        m1_e01 = 2*(-q_22 + q_16)
+        m1_e02 = q_25 - q_10 + q_17 - q_14
+        m1_e03 = 2*(q_23 + q_12)
+        m1_e12 = 2*(q_18 + q_3 + q_8 - q_13)
+        m1_e31 = 2*(-q_19 - q_1 + q_5 - q_6)
+        m1_e23 = 2*(-q_21 + q_2 + q_4 + q_9)
+        m2_e01 = 2*(q_24 + q_11)
+        m2_e02 = 2*(-q_23 + q_12)
+        m2_e03 = q_25 + q_10 - q_17 - q_14
+        m2_e12 = 2*(-q_19 - q_1 - q_5 + q_6)
+        m2_e31 = 2*(-q_18 + q_3 + q_8 + q_13)
+        m2_e23 = 2*(q_20 + q_0 + q_7 - q_15)
+        m3_e12 = q_25 + q_10 - q_17 - q_14
+        m3_e31 = 2*(-q_23 + q_12)
+        m3_e23 = 2*(q_24 + q_11)
+        m4_e12 = 2*(q_23 + q_12)
+        m4_e31 = q_25 - q_10 + q_17 - q_14
+        m4_e23 = 2*(-q_22 + q_16)
+        m5_e12 = 2*(-q_24 + q_11)
+        m5_e31 = 2*(q_22 + q_16)
+        m5_e23 = q_25 - q_10 - q_17 + q_14
+        # e01
+        out[6*i] = (
+            m0_e01*b_e01 + m0_e02*b_e02 + m0_e03*b_e03 + m0_e12*b_e12 + m0_e31*b_e31
+            + m0_e23*b_e23
+        )
+        # e02
+        out[6*i + 1] = (
+            m1_e01*b_e01 + m1_e02*b_e02 + m1_e03*b_e03 + m1_e12*b_e12 + m1_e31*b_e31
+            + m1_e23*b_e23
+        )
+        # e03
+        out[6*i + 2] = (
+            m2_e01*b_e01 + m2_e02*b_e02 + m2_e03*b_e03 + m2_e12*b_e12 + m2_e31*b_e31
+            + m2_e23*b_e23
+        )
+        # e12
+        out[6*i + 3] = m3_e12*b_e12 + m3_e31*b_e31 + m3_e23*b_e23
+        # e31
+        out[6*i + 4] = m4_e12*b_e12 + m4_e31*b_e31 + m4_e23*b_e23
+        # e23
+        out[6*i + 5] = m5_e12*b_e12 + m5_e31*b_e31 + m5_e23*b_e23
 
 
 @njit(cache=True, error_model="numpy")
-def _move_line_one_a(a, b, out, n):
-    """move_line of one `a` with each row of the other argument."""
-    t = (a[0], a[1], a[2], a[3], a[4], a[5], a[6], a[7])
+def _move_line_one_a(a, b, out):
+    """move_line of one `a` with each row of `b`: the matrix of `a` once (47 multiplies, 57 adds),
+    then 27 multiplies, 21 adds per row."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    a_s = a[0]
+    a_e01 = a[1]
+    a_e02 = a[2]
+    a_e03 = a[3]
+    a_e12 = a[4]
+    a_e31 = a[5]
+    a_e23 = a[6]
+    a_e0123 = a[7]
+    q_0 = a_e01*a_e12
+    q_1 = a_e01*a_e23
+    q_2 = a_e01*a_e31
+    q_3 = a_e02*a_e12
+    q_4 = a_e02*a_e23
+    q_5 = a_e02*a_e31
+    q_6 = a_e03*a_e12
+    q_7 = a_e03*a_e23
+    q_8 = a_e03*a_e31
+    q_9 = a_e12*a_e0123
+    q_10 = a_e12*a_e12
+    q_11 = a_e12*a_e23
+    q_12 = a_e12*a_e31
+    q_13 = a_e23*a_e0123
+    q_14 = a_e23*a_e23
+    q_15 = a_e31*a_e0123
+    q_16 = a_e31*a_e23
+    q_17 = a_e31*a_e31
+    q_18 = a_s*a_e01
+    q_19 = a_s*a_e0123
+    q_20 = a_s*a_e02
+    q_21 = a_s*a_e03
+    q_22 = a_s*a_e12
+    q_23 = a_s*a_e23
+    q_24 = a_s*a_e31
+    q_25 = a_s*a_s
+    m0_e01 = q_25 - q_10 - q_17 + q_14
+    m0_e02 = 2*(q_22 + q_16)
+    m0_e03 = 2*(-q_24 + q_11)
+    m0_e12 = 2*(-q_20 + q_0 + q_7 + q_15)
+    m0_e31 = 2*(q_21 + q_2 + q_4 - q_9)
+    m0_e23 = 2*(-q_19 + q_1 - q_5 - q_6)
+    m1_e01 = 2*(-q_22 + q_16)
+    m1_e02 = q_25 - q_10 + q_17 - q_14
+    m1_e03 = 2*(q_23 + q_12)
+    m1_e12 = 2*(q_18 + q_3 + q_8 - q_13)
+    m1_e31 = 2*(-q_19 - q_1 + q_5 - q_6)
+    m1_e23 = 2*(-q_21 + q_2 + q_4 + q_9)
+    m2_e01 = 2*(q_24 + q_11)
+    m2_e02 = 2*(-q_23 + q_12)
+    m2_e03 = q_25 + q_10 - q_17 - q_14
+    m2_e12 = 2*(-q_19 - q_1 - q_5 + q_6)
+    m2_e31 = 2*(-q_18 + q_3 + q_8 + q_13)
+    m2_e23 = 2*(q_20 + q_0 + q_7 - q_15)
+    m3_e12 = q_25 + q_10 - q_17 - q_14
+    m3_e31 = 2*(-q_23 + q_12)
+    m3_e23 = 2*(q_24 + q_11)
+    m4_e12 = 2*(q_23 + q_12)
+    m4_e31 = q_25 - q_10 + q_17 - q_14
+    m4_e23 = 2*(-q_22 + q_16)
+    m5_e12 = 2*(-q_24 + q_11)
+    m5_e31 = 2*(q_22 + q_16)
+    m5_e23 = q_25 - q_10 - q_17 + q_14
     for i in range(n):
-        (out[6*i], out[6*i + 1], out[6*i + 2], out[6*i + 3], out[6*i + 4],
-         out[6*i + 5]) = move_line(
-            t,
-            (b[6*i], b[6*i + 1], b[6*i + 2], b[6*i + 3], b[6*i + 4], b[6*i + 5]))
+        b_e01 = b[6*i]
+        b_e02 = b[6*i + 1]
+        b_e03 = b[6*i + 2]
+        b_e12 = b[6*i + 3]
+        b_e31 = b[6*i + 4]
+        b_e23 = b[6*i + 5]
+        # e01
+        out[6*i] = (
+            m0_e01*b_e01 + m0_e02*b_e02 + m0_e03*b_e03 + m0_e12*b_e12 + m0_e31*b_e31
+            + m0_e23*b_e23
+        )
+        # e02
+        out[6*i + 1] = (
+            m1_e01*b_e01 + m1_e02*b_e02 + m1_e03*b_e03 + m1_e12*b_e12 + m1_e31*b_e31
+            + m1_e23*b_e23
+        )
+        # e03
+        out[6*i + 2] = (
+            m2_e01*b_e01 + m2_e02*b_e02 + m2_e03*b_e03 + m2_e12*b_e12 + m2_e31*b_e31
+            + m2_e23*b_e23
+        )
+        # e12
+        out[6*i + 3] = m3_e12*b_e12 + m3_e31*b_e31 + m3_e23*b_e23
+        # e31
+        out[6*i + 4] = m4_e12*b_e12 + m4_e31*b_e31 + m4_e23*b_e23
+        # e23
+        out[6*i + 5] = m5_e12*b_e12 + m5_e31*b_e31 + m5_e23*b_e23
 
 
 @njit(cache=True, error_model="numpy")
-def _move_line_one_b(a, b, out, n):
+def _move_line_one_b(a, b, out):
     """move_line of one `b` with each row of the other argument."""
-    t = (b[0], b[1], b[2], b[3], b[4], b[5])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    b_e01 = b[0]
+    b_e02 = b[1]
+    b_e03 = b[2]
+    b_e12 = b[3]
+    b_e31 = b[4]
+    b_e23 = b[5]
     for i in range(n):
-        (out[6*i], out[6*i + 1], out[6*i + 2], out[6*i + 3], out[6*i + 4],
-         out[6*i + 5]) = move_line(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]),
-            t)
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        q_0 = a_e01*a_e12
+        q_1 = a_e01*a_e23
+        q_2 = a_e01*a_e31
+        q_3 = a_e02*a_e12
+        q_4 = a_e02*a_e23
+        q_5 = a_e02*a_e31
+        q_6 = a_e03*a_e12
+        q_7 = a_e03*a_e23
+        q_8 = a_e03*a_e31
+        q_9 = a_e12*a_e0123
+        q_10 = a_e12*a_e12
+        q_11 = a_e12*a_e23
+        q_12 = a_e12*a_e31
+        q_13 = a_e23*a_e0123
+        q_14 = a_e23*a_e23
+        q_15 = a_e31*a_e0123
+        q_16 = a_e31*a_e23
+        q_17 = a_e31*a_e31
+        q_18 = a_s*a_e01
+        q_19 = a_s*a_e0123
+        q_20 = a_s*a_e02
+        q_21 = a_s*a_e03
+        q_22 = a_s*a_e12
+        q_23 = a_s*a_e23
+        q_24 = a_s*a_e31
+        q_25 = a_s*a_s
+        m0_e01 = q_25 - q_10 - q_17 + q_14
+        m0_e02 = 2*(q_22 + q_16)
+        m0_e03 = 2*(-q_24 + q_11)
+        m0_e12 = 2*(-q_20 + q_0 + q_7 + q_15)
+        m0_e31 = 2*(q_21 + q_2 + q_4 - q_9)
+        m0_e23 = 2*(-q_19 + q_1 - q_5 - q_6)
+        m1_e01 = 2*(-q_22 + q_16)
+        m1_e02 = q_25 - q_10 + q_17 - q_14
+        m1_e03 = 2*(q_23 + q_12)
+        m1_e12 = 2*(q_18 + q_3 + q_8 - q_13)
+        m1_e31 = 2*(-q_19 - q_1 + q_5 - q_6)
+        m1_e23 = 2*(-q_21 + q_2 + q_4 + q_9)
+        m2_e01 = 2*(q_24 + q_11)
+        m2_e02 = 2*(-q_23 + q_12)
+        m2_e03 = q_25 + q_10 - q_17 - q_14
+        m2_e12 = 2*(-q_19 - q_1 - q_5 + q_6)
+        m2_e31 = 2*(-q_18 + q_3 + q_8 + q_13)
+        m2_e23 = 2*(q_20 + q_0 + q_7 - q_15)
+        m3_e12 = q_25 + q_10 - q_17 - q_14
+        m3_e31 = 2*(-q_23 + q_12)
+        m3_e23 = 2*(q_24 + q_11)
+        m4_e12 = 2*(q_23 + q_12)
+        m4_e31 = q_25 - q_10 + q_17 - q_14
+        m4_e23 = 2*(-q_22 + q_16)
+        m5_e12 = 2*(-q_24 + q_11)
+        m5_e31 = 2*(q_22 + q_16)
+        m5_e23 = q_25 - q_10 - q_17 + q_14
+        # e01
+        out[6*i] = (
+            m0_e01*b_e01 + m0_e02*b_e02 + m0_e03*b_e03 + m0_e12*b_e12 + m0_e31*b_e31
+            + m0_e23*b_e23
+        )
+        # e02
+        out[6*i + 1] = (
+            m1_e01*b_e01 + m1_e02*b_e02 + m1_e03*b_e03 + m1_e12*b_e12 + m1_e31*b_e31
+            + m1_e23*b_e23
+        )
+        # e03
+        out[6*i + 2] = (
+            m2_e01*b_e01 + m2_e02*b_e02 + m2_e03*b_e03 + m2_e12*b_e12 + m2_e31*b_e31
+            + m2_e23*b_e23
+        )
+        # e12
+        out[6*i + 3] = m3_e12*b_e12 + m3_e31*b_e31 + m3_e23*b_e23
+        # e31
+        out[6*i + 4] = m4_e12*b_e12 + m4_e31*b_e31 + m4_e23*b_e23
+        # e23
+        out[6*i + 5] = m5_e12*b_e12 + m5_e31*b_e31 + m5_e23*b_e23
 
 
 def move_line_batch(a, b, out=None):
@@ -463,13 +977,13 @@ def move_line_batch(a, b, out=None):
     a = _rows(a, "move_line_batch", "a", 8, "motor")
     b = _rows(b, "move_line_batch", "b", 6, "line")
     n = _length("move_line_batch", a, b)
-    out = _result(out, "move_line_batch", n, 6, "line", np.result_type(a.dtype, b.dtype))
+    out = _result(out, "move_line_batch", n, 6, "line", _dtype(a, b))
     if a.shape[0] == b.shape[0]:
-        _move_line_each(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _move_line_each(a, b, out)
     elif a.shape[0] == 1:
-        _move_line_one_a(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _move_line_one_a(a, b, out)
     else:
-        _move_line_one_b(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _move_line_one_b(a, b, out)
     return out
 
 
@@ -517,34 +1031,157 @@ def move_plane(a, b):
 
 
 @njit(cache=True, error_model="numpy")
-def _move_plane_each(a, b, out, n):
+def _move_plane_each(a, b, out):
     """move_plane of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = move_plane(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]),
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        b_e0 = b[4*i]
+        b_e1 = b[4*i + 1]
+        b_e2 = b[4*i + 2]
+        b_e3 = b[4*i + 3]
+        q_0 = a_e12*a_e12
+        q_1 = a_e12*a_e23
+        q_2 = a_e12*a_e31
+        q_3 = a_e23*a_e23
+        q_4 = a_e31*a_e23
+        q_5 = a_e31*a_e31
+        q_6 = a_s*a_e12
+        q_7 = a_s*a_e23
+        q_8 = a_s*a_e31
+        q_9 = a_s*a_s
+        m0_e0 = q_9 + q_0 + q_5 + q_3
+        m0_e1 = 2*(a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 + a_e23*a_e0123)
+        m0_e2 = 2*(a_s*a_e02 + a_e01*a_e12 - a_e03*a_e23 + a_e31*a_e0123)
+        m0_e3 = 2*(a_s*a_e03 - a_e01*a_e31 + a_e02*a_e23 + a_e12*a_e0123)
+        m1_e1 = q_9 - q_0 - q_5 + q_3
+        m1_e2 = 2*(q_6 + q_4)
+        m1_e3 = 2*(-q_8 + q_1)
+        m2_e1 = 2*(-q_6 + q_4)
+        m2_e2 = q_9 - q_0 + q_5 - q_3
+        m2_e3 = 2*(q_7 + q_2)
+        m3_e1 = 2*(q_8 + q_1)
+        m3_e2 = 2*(-q_7 + q_2)
+        m3_e3 = q_9 + q_0 - q_5 - q_3
+        # e0
+        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        # e1
+        out[4*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        # e2
+        out[4*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        # e3
+        out[4*i + 3] = m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
 
 
 @njit(cache=True, error_model="numpy")
-def _move_plane_one_a(a, b, out, n):
-    """move_plane of one `a` with each row of the other argument."""
-    t = (a[0], a[1], a[2], a[3], a[4], a[5], a[6], a[7])
+def _move_plane_one_a(a, b, out):
+    """move_plane of one `a` with each row of `b`: the matrix of `a` once (31 multiplies, 27 adds),
+    then 13 multiplies, 9 adds per row."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    a_s = a[0]
+    a_e01 = a[1]
+    a_e02 = a[2]
+    a_e03 = a[3]
+    a_e12 = a[4]
+    a_e31 = a[5]
+    a_e23 = a[6]
+    a_e0123 = a[7]
+    q_0 = a_e12*a_e12
+    q_1 = a_e12*a_e23
+    q_2 = a_e12*a_e31
+    q_3 = a_e23*a_e23
+    q_4 = a_e31*a_e23
+    q_5 = a_e31*a_e31
+    q_6 = a_s*a_e12
+    q_7 = a_s*a_e23
+    q_8 = a_s*a_e31
+    q_9 = a_s*a_s
+    m0_e0 = q_9 + q_0 + q_5 + q_3
+    m0_e1 = 2*(a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 + a_e23*a_e0123)
+    m0_e2 = 2*(a_s*a_e02 + a_e01*a_e12 - a_e03*a_e23 + a_e31*a_e0123)
+    m0_e3 = 2*(a_s*a_e03 - a_e01*a_e31 + a_e02*a_e23 + a_e12*a_e0123)
+    m1_e1 = q_9 - q_0 - q_5 + q_3
+    m1_e2 = 2*(q_6 + q_4)
+    m1_e3 = 2*(-q_8 + q_1)
+    m2_e1 = 2*(-q_6 + q_4)
+    m2_e2 = q_9 - q_0 + q_5 - q_3
+    m2_e3 = 2*(q_7 + q_2)
+    m3_e1 = 2*(q_8 + q_1)
+    m3_e2 = 2*(-q_7 + q_2)
+    m3_e3 = q_9 + q_0 - q_5 - q_3
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = move_plane(
-            t,
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        b_e0 = b[4*i]
+        b_e1 = b[4*i + 1]
+        b_e2 = b[4*i + 2]
+        b_e3 = b[4*i + 3]
+        # e0
+        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        # e1
+        out[4*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        # e2
+        out[4*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        # e3
+        out[4*i + 3] = m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
 
 
 @njit(cache=True, error_model="numpy")
-def _move_plane_one_b(a, b, out, n):
+def _move_plane_one_b(a, b, out):
     """move_plane of one `b` with each row of the other argument."""
-    t = (b[0], b[1], b[2], b[3])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    b_e0 = b[0]
+    b_e1 = b[1]
+    b_e2 = b[2]
+    b_e3 = b[3]
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = move_plane(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]),
-            t)
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        q_0 = a_e12*a_e12
+        q_1 = a_e12*a_e23
+        q_2 = a_e12*a_e31
+        q_3 = a_e23*a_e23
+        q_4 = a_e31*a_e23
+        q_5 = a_e31*a_e31
+        q_6 = a_s*a_e12
+        q_7 = a_s*a_e23
+        q_8 = a_s*a_e31
+        q_9 = a_s*a_s
+        m0_e0 = q_9 + q_0 + q_5 + q_3
+        m0_e1 = 2*(a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 + a_e23*a_e0123)
+        m0_e2 = 2*(a_s*a_e02 + a_e01*a_e12 - a_e03*a_e23 + a_e31*a_e0123)
+        m0_e3 = 2*(a_s*a_e03 - a_e01*a_e31 + a_e02*a_e23 + a_e12*a_e0123)
+        m1_e1 = q_9 - q_0 - q_5 + q_3
+        m1_e2 = 2*(q_6 + q_4)
+        m1_e3 = 2*(-q_8 + q_1)
+        m2_e1 = 2*(-q_6 + q_4)
+        m2_e2 = q_9 - q_0 + q_5 - q_3
+        m2_e3 = 2*(q_7 + q_2)
+        m3_e1 = 2*(q_8 + q_1)
+        m3_e2 = 2*(-q_7 + q_2)
+        m3_e3 = q_9 + q_0 - q_5 - q_3
+        # e0
+        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        # e1
+        out[4*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        # e2
+        out[4*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        # e3
+        out[4*i + 3] = m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
 
 
 def move_plane_batch(a, b, out=None):
@@ -556,13 +1193,13 @@ def move_plane_batch(a, b, out=None):
     a = _rows(a, "move_plane_batch", "a", 8, "motor")
     b = _rows(b, "move_plane_batch", "b", 4, "plane")
     n = _length("move_plane_batch", a, b)
-    out = _result(out, "move_plane_batch", n, 4, "plane", np.result_type(a.dtype, b.dtype))
+    out = _result(out, "move_plane_batch", n, 4, "plane", _dtype(a, b))
     if a.shape[0] == b.shape[0]:
-        _move_plane_each(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _move_plane_each(a, b, out)
     elif a.shape[0] == 1:
-        _move_plane_one_a(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _move_plane_one_a(a, b, out)
     else:
-        _move_plane_one_b(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _move_plane_one_b(a, b, out)
     return out
 
 
@@ -620,15 +1257,61 @@ def motor_matrix(a):
 
 
 @njit(cache=True, error_model="numpy")
-def _motor_matrix_each(a, out, n):
+def _motor_matrix_each(a, out):
     """motor_matrix of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[16*i], out[16*i + 1], out[16*i + 2], out[16*i + 3], out[16*i + 4], out[16*i + 5],
-         out[16*i + 6], out[16*i + 7], out[16*i + 8], out[16*i + 9], out[16*i + 10],
-         out[16*i + 11], out[16*i + 12], out[16*i + 13], out[16*i + 14],
-         out[16*i + 15]) = motor_matrix(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]))
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        q_0 = a_e12*a_e12
+        q_1 = a_e12*a_e23
+        q_2 = a_e12*a_e31
+        q_3 = a_e23*a_e23
+        q_4 = a_e31*a_e23
+        q_5 = a_e31*a_e31
+        q_6 = a_s*a_e12
+        q_7 = a_s*a_e23
+        q_8 = a_s*a_e31
+        q_9 = a_s*a_s
+        # m0_0
+        out[16*i] = q_9 + q_0 - q_5 - q_3
+        # m0_1
+        out[16*i + 1] = 2*(-q_7 + q_2)
+        # m0_2
+        out[16*i + 2] = 2*(q_8 + q_1)
+        # m0_3
+        out[16*i + 3] = 2*(-a_s*a_e03 - a_e01*a_e31 + a_e02*a_e23 - a_e12*a_e0123)
+        # m1_0
+        out[16*i + 4] = 2*(q_7 + q_2)
+        # m1_1
+        out[16*i + 5] = q_9 - q_0 + q_5 - q_3
+        # m1_2
+        out[16*i + 6] = 2*(-q_6 + q_4)
+        # m1_3
+        out[16*i + 7] = 2*(-a_s*a_e02 + a_e01*a_e12 - a_e03*a_e23 - a_e31*a_e0123)
+        # m2_0
+        out[16*i + 8] = 2*(-q_8 + q_1)
+        # m2_1
+        out[16*i + 9] = 2*(q_6 + q_4)
+        # m2_2
+        out[16*i + 10] = q_9 - q_0 - q_5 + q_3
+        # m2_3
+        out[16*i + 11] = 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123)
+        # m3_0
+        out[16*i + 12] = 0
+        # m3_1
+        out[16*i + 13] = 0
+        # m3_2
+        out[16*i + 14] = 0
+        # m3_3
+        out[16*i + 15] = q_9 + q_0 + q_5 + q_3
 
 
 def motor_matrix_batch(a, out=None):
@@ -637,9 +1320,8 @@ def motor_matrix_batch(a, out=None):
     See the module docstring for dtypes and `out`.
     """
     a = _rows(a, "motor_matrix_batch", "a", 8, "motor")
-    n = a.shape[0]
-    out = _result(out, "motor_matrix_batch", n, 16, "motor_matrix_result", a.dtype)
-    _motor_matrix_each(a.reshape(-1), out.reshape(-1), n)
+    out = _result(out, "motor_matrix_batch", a.shape[0], 16, "motor_matrix_result", a.dtype)
+    _motor_matrix_each(a, out)
     return out
 
 
@@ -668,32 +1350,87 @@ def join(a, b):
 
 
 @njit(cache=True, error_model="numpy")
-def _join_each(a, b, out, n):
+def _join_each(a, b, out):
     """join of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[6*i], out[6*i + 1], out[6*i + 2], out[6*i + 3], out[6*i + 4], out[6*i + 5]) = join(
-            (a[4*i], a[4*i + 1], a[4*i + 2], a[4*i + 3]),
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        a_e021 = a[4*i]
+        a_e013 = a[4*i + 1]
+        a_e032 = a[4*i + 2]
+        a_e123 = a[4*i + 3]
+        b_e021 = b[4*i]
+        b_e013 = b[4*i + 1]
+        b_e032 = b[4*i + 2]
+        b_e123 = b[4*i + 3]
+        # e01
+        out[6*i] = -a_e021*b_e013 + a_e013*b_e021
+        # e02
+        out[6*i + 1] = a_e021*b_e032 - a_e032*b_e021
+        # e03
+        out[6*i + 2] = -a_e013*b_e032 + a_e032*b_e013
+        # e12
+        out[6*i + 3] = -a_e021*b_e123 + a_e123*b_e021
+        # e31
+        out[6*i + 4] = -a_e013*b_e123 + a_e123*b_e013
+        # e23
+        out[6*i + 5] = -a_e032*b_e123 + a_e123*b_e032
 
 
 @njit(cache=True, error_model="numpy")
-def _join_one_a(a, b, out, n):
+def _join_one_a(a, b, out):
     """join of one `a` with each row of the other argument."""
-    t = (a[0], a[1], a[2], a[3])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    a_e021 = a[0]
+    a_e013 = a[1]
+    a_e032 = a[2]
+    a_e123 = a[3]
     for i in range(n):
-        (out[6*i], out[6*i + 1], out[6*i + 2], out[6*i + 3], out[6*i + 4], out[6*i + 5]) = join(
-            t,
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        b_e021 = b[4*i]
+        b_e013 = b[4*i + 1]
+        b_e032 = b[4*i + 2]
+        b_e123 = b[4*i + 3]
+        # e01
+        out[6*i] = -a_e021*b_e013 + a_e013*b_e021
+        # e02
+        out[6*i + 1] = a_e021*b_e032 - a_e032*b_e021
+        # e03
+        out[6*i + 2] = -a_e013*b_e032 + a_e032*b_e013
+        # e12
+        out[6*i + 3] = -a_e021*b_e123 + a_e123*b_e021
+        # e31
+        out[6*i + 4] = -a_e013*b_e123 + a_e123*b_e013
+        # e23
+        out[6*i + 5] = -a_e032*b_e123 + a_e123*b_e032
 
 
 @njit(cache=True, error_model="numpy")
-def _join_one_b(a, b, out, n):
+def _join_one_b(a, b, out):
     """join of one `b` with each row of the other argument."""
-    t = (b[0], b[1], b[2], b[3])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    b_e021 = b[0]
+    b_e013 = b[1]
+    b_e032 = b[2]
+    b_e123 = b[3]
     for i in range(n):
-        (out[6*i], out[6*i + 1], out[6*i + 2], out[6*i + 3], out[6*i + 4], out[6*i + 5]) = join(
-            (a[4*i], a[4*i + 1], a[4*i + 2], a[4*i + 3]),
-            t)
+        a_e021 = a[4*i]
+        a_e013 = a[4*i + 1]
+        a_e032 = a[4*i + 2]
+        a_e123 = a[4*i + 3]
+        # e01
+        out[6*i] = -a_e021*b_e013 + a_e013*b_e021
+        # e02
+        out[6*i + 1] = a_e021*b_e032 - a_e032*b_e021
+        # e03
+        out[6*i + 2] = -a_e013*b_e032 + a_e032*b_e013
+        # e12
+        out[6*i + 3] = -a_e021*b_e123 + a_e123*b_e021
+        # e31
+        out[6*i + 4] = -a_e013*b_e123 + a_e123*b_e013
+        # e23
+        out[6*i + 5] = -a_e032*b_e123 + a_e123*b_e032
 
 
 def join_batch(a, b, out=None):
@@ -705,13 +1442,13 @@ def join_batch(a, b, out=None):
     a = _rows(a, "join_batch", "a", 4, "point")
     b = _rows(b, "join_batch", "b", 4, "point")
     n = _length("join_batch", a, b)
-    out = _result(out, "join_batch", n, 6, "line", np.result_type(a.dtype, b.dtype))
+    out = _result(out, "join_batch", n, 6, "line", _dtype(a, b))
     if a.shape[0] == b.shape[0]:
-        _join_each(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _join_each(a, b, out)
     elif a.shape[0] == 1:
-        _join_one_a(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _join_one_a(a, b, out)
     else:
-        _join_one_b(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _join_one_b(a, b, out)
     return out
 
 
@@ -740,35 +1477,87 @@ def meet_planes(a, b):
 
 
 @njit(cache=True, error_model="numpy")
-def _meet_planes_each(a, b, out, n):
+def _meet_planes_each(a, b, out):
     """meet_planes of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[6*i], out[6*i + 1], out[6*i + 2], out[6*i + 3], out[6*i + 4],
-         out[6*i + 5]) = meet_planes(
-            (a[4*i], a[4*i + 1], a[4*i + 2], a[4*i + 3]),
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        a_e0 = a[4*i]
+        a_e1 = a[4*i + 1]
+        a_e2 = a[4*i + 2]
+        a_e3 = a[4*i + 3]
+        b_e0 = b[4*i]
+        b_e1 = b[4*i + 1]
+        b_e2 = b[4*i + 2]
+        b_e3 = b[4*i + 3]
+        # e01
+        out[6*i] = a_e0*b_e1 - a_e1*b_e0
+        # e02
+        out[6*i + 1] = a_e0*b_e2 - a_e2*b_e0
+        # e03
+        out[6*i + 2] = a_e0*b_e3 - a_e3*b_e0
+        # e12
+        out[6*i + 3] = a_e1*b_e2 - a_e2*b_e1
+        # e31
+        out[6*i + 4] = -a_e1*b_e3 + a_e3*b_e1
+        # e23
+        out[6*i + 5] = a_e2*b_e3 - a_e3*b_e2
 
 
 @njit(cache=True, error_model="numpy")
-def _meet_planes_one_a(a, b, out, n):
+def _meet_planes_one_a(a, b, out):
     """meet_planes of one `a` with each row of the other argument."""
-    t = (a[0], a[1], a[2], a[3])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    a_e0 = a[0]
+    a_e1 = a[1]
+    a_e2 = a[2]
+    a_e3 = a[3]
     for i in range(n):
-        (out[6*i], out[6*i + 1], out[6*i + 2], out[6*i + 3], out[6*i + 4],
-         out[6*i + 5]) = meet_planes(
-            t,
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        b_e0 = b[4*i]
+        b_e1 = b[4*i + 1]
+        b_e2 = b[4*i + 2]
+        b_e3 = b[4*i + 3]
+        # e01
+        out[6*i] = a_e0*b_e1 - a_e1*b_e0
+        # e02
+        out[6*i + 1] = a_e0*b_e2 - a_e2*b_e0
+        # e03
+        out[6*i + 2] = a_e0*b_e3 - a_e3*b_e0
+        # e12
+        out[6*i + 3] = a_e1*b_e2 - a_e2*b_e1
+        # e31
+        out[6*i + 4] = -a_e1*b_e3 + a_e3*b_e1
+        # e23
+        out[6*i + 5] = a_e2*b_e3 - a_e3*b_e2
 
 
 @njit(cache=True, error_model="numpy")
-def _meet_planes_one_b(a, b, out, n):
+def _meet_planes_one_b(a, b, out):
     """meet_planes of one `b` with each row of the other argument."""
-    t = (b[0], b[1], b[2], b[3])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    b_e0 = b[0]
+    b_e1 = b[1]
+    b_e2 = b[2]
+    b_e3 = b[3]
     for i in range(n):
-        (out[6*i], out[6*i + 1], out[6*i + 2], out[6*i + 3], out[6*i + 4],
-         out[6*i + 5]) = meet_planes(
-            (a[4*i], a[4*i + 1], a[4*i + 2], a[4*i + 3]),
-            t)
+        a_e0 = a[4*i]
+        a_e1 = a[4*i + 1]
+        a_e2 = a[4*i + 2]
+        a_e3 = a[4*i + 3]
+        # e01
+        out[6*i] = a_e0*b_e1 - a_e1*b_e0
+        # e02
+        out[6*i + 1] = a_e0*b_e2 - a_e2*b_e0
+        # e03
+        out[6*i + 2] = a_e0*b_e3 - a_e3*b_e0
+        # e12
+        out[6*i + 3] = a_e1*b_e2 - a_e2*b_e1
+        # e31
+        out[6*i + 4] = -a_e1*b_e3 + a_e3*b_e1
+        # e23
+        out[6*i + 5] = a_e2*b_e3 - a_e3*b_e2
 
 
 def meet_planes_batch(a, b, out=None):
@@ -780,13 +1569,13 @@ def meet_planes_batch(a, b, out=None):
     a = _rows(a, "meet_planes_batch", "a", 4, "plane")
     b = _rows(b, "meet_planes_batch", "b", 4, "plane")
     n = _length("meet_planes_batch", a, b)
-    out = _result(out, "meet_planes_batch", n, 6, "line", np.result_type(a.dtype, b.dtype))
+    out = _result(out, "meet_planes_batch", n, 6, "line", _dtype(a, b))
     if a.shape[0] == b.shape[0]:
-        _meet_planes_each(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _meet_planes_each(a, b, out)
     elif a.shape[0] == 1:
-        _meet_planes_one_a(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _meet_planes_one_a(a, b, out)
     else:
-        _meet_planes_one_b(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _meet_planes_one_b(a, b, out)
     return out
 
 
@@ -811,32 +1600,81 @@ def meet_line_plane(a, b):
 
 
 @njit(cache=True, error_model="numpy")
-def _meet_line_plane_each(a, b, out, n):
+def _meet_line_plane_each(a, b, out):
     """meet_line_plane of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = meet_line_plane(
-            (a[6*i], a[6*i + 1], a[6*i + 2], a[6*i + 3], a[6*i + 4], a[6*i + 5]),
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        a_e01 = a[6*i]
+        a_e02 = a[6*i + 1]
+        a_e03 = a[6*i + 2]
+        a_e12 = a[6*i + 3]
+        a_e31 = a[6*i + 4]
+        a_e23 = a[6*i + 5]
+        b_e0 = b[4*i]
+        b_e1 = b[4*i + 1]
+        b_e2 = b[4*i + 2]
+        b_e3 = b[4*i + 3]
+        # e021
+        out[4*i] = -a_e01*b_e2 + a_e02*b_e1 - a_e12*b_e0
+        # e013
+        out[4*i + 1] = a_e01*b_e3 - a_e03*b_e1 - a_e31*b_e0
+        # e032
+        out[4*i + 2] = -a_e02*b_e3 + a_e03*b_e2 - a_e23*b_e0
+        # e123
+        out[4*i + 3] = a_e12*b_e3 + a_e31*b_e2 + a_e23*b_e1
 
 
 @njit(cache=True, error_model="numpy")
-def _meet_line_plane_one_a(a, b, out, n):
+def _meet_line_plane_one_a(a, b, out):
     """meet_line_plane of one `a` with each row of the other argument."""
-    t = (a[0], a[1], a[2], a[3], a[4], a[5])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    a_e01 = a[0]
+    a_e02 = a[1]
+    a_e03 = a[2]
+    a_e12 = a[3]
+    a_e31 = a[4]
+    a_e23 = a[5]
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = meet_line_plane(
-            t,
-            (b[4*i], b[4*i + 1], b[4*i + 2], b[4*i + 3]))
+        b_e0 = b[4*i]
+        b_e1 = b[4*i + 1]
+        b_e2 = b[4*i + 2]
+        b_e3 = b[4*i + 3]
+        # e021
+        out[4*i] = -a_e01*b_e2 + a_e02*b_e1 - a_e12*b_e0
+        # e013
+        out[4*i + 1] = a_e01*b_e3 - a_e03*b_e1 - a_e31*b_e0
+        # e032
+        out[4*i + 2] = -a_e02*b_e3 + a_e03*b_e2 - a_e23*b_e0
+        # e123
+        out[4*i + 3] = a_e12*b_e3 + a_e31*b_e2 + a_e23*b_e1
 
 
 @njit(cache=True, error_model="numpy")
-def _meet_line_plane_one_b(a, b, out, n):
+def _meet_line_plane_one_b(a, b, out):
     """meet_line_plane of one `b` with each row of the other argument."""
-    t = (b[0], b[1], b[2], b[3])
+    n = out.shape[0]
+    a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
+    b_e0 = b[0]
+    b_e1 = b[1]
+    b_e2 = b[2]
+    b_e3 = b[3]
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = meet_line_plane(
-            (a[6*i], a[6*i + 1], a[6*i + 2], a[6*i + 3], a[6*i + 4], a[6*i + 5]),
-            t)
+        a_e01 = a[6*i]
+        a_e02 = a[6*i + 1]
+        a_e03 = a[6*i + 2]
+        a_e12 = a[6*i + 3]
+        a_e31 = a[6*i + 4]
+        a_e23 = a[6*i + 5]
+        # e021
+        out[4*i] = -a_e01*b_e2 + a_e02*b_e1 - a_e12*b_e0
+        # e013
+        out[4*i + 1] = a_e01*b_e3 - a_e03*b_e1 - a_e31*b_e0
+        # e032
+        out[4*i + 2] = -a_e02*b_e3 + a_e03*b_e2 - a_e23*b_e0
+        # e123
+        out[4*i + 3] = a_e12*b_e3 + a_e31*b_e2 + a_e23*b_e1
 
 
 def meet_line_plane_batch(a, b, out=None):
@@ -848,13 +1686,13 @@ def meet_line_plane_batch(a, b, out=None):
     a = _rows(a, "meet_line_plane_batch", "a", 6, "line")
     b = _rows(b, "meet_line_plane_batch", "b", 4, "plane")
     n = _length("meet_line_plane_batch", a, b)
-    out = _result(out, "meet_line_plane_batch", n, 4, "point", np.result_type(a.dtype, b.dtype))
+    out = _result(out, "meet_line_plane_batch", n, 4, "point", _dtype(a, b))
     if a.shape[0] == b.shape[0]:
-        _meet_line_plane_each(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _meet_line_plane_each(a, b, out)
     elif a.shape[0] == 1:
-        _meet_line_plane_one_a(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _meet_line_plane_one_a(a, b, out)
     else:
-        _meet_line_plane_one_b(a.reshape(-1), b.reshape(-1), out.reshape(-1), n)
+        _meet_line_plane_one_b(a, b, out)
     return out
 
 
@@ -893,12 +1731,40 @@ def motor_from_line(a):
 
 
 @njit(cache=True, error_model="numpy")
-def _motor_from_line_each(a, out, n):
+def _motor_from_line_each(a, out):
     """motor_from_line of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[8*i], out[8*i + 1], out[8*i + 2], out[8*i + 3], out[8*i + 4], out[8*i + 5],
-         out[8*i + 6], out[8*i + 7]) = motor_from_line(
-            (a[6*i], a[6*i + 1], a[6*i + 2], a[6*i + 3], a[6*i + 4], a[6*i + 5]))
+        a_e01 = a[6*i]
+        a_e02 = a[6*i + 1]
+        a_e03 = a[6*i + 2]
+        a_e12 = a[6*i + 3]
+        a_e31 = a[6*i + 4]
+        a_e23 = a[6*i + 5]
+        t0 = -a_e12*a_e12 - a_e31*a_e31 - a_e23*a_e23
+        t1 = _exp_c(t0)
+        t2 = _exp_s(t0)
+        t3 = a_e01*a_e23 + a_e02*a_e31 + a_e03*a_e12
+        t4 = _exp_d(t0)
+        t5 = t3*t2
+        t6 = t3*t4
+        # s
+        out[8*i] = t1
+        # e01
+        out[8*i + 1] = t2*a_e01 - t6*a_e23
+        # e02
+        out[8*i + 2] = t2*a_e02 - t6*a_e31
+        # e03
+        out[8*i + 3] = t2*a_e03 - t6*a_e12
+        # e12
+        out[8*i + 4] = t2*a_e12
+        # e31
+        out[8*i + 5] = t2*a_e31
+        # e23
+        out[8*i + 6] = t2*a_e23
+        # e0123
+        out[8*i + 7] = t5
 
 
 def motor_from_line_batch(a, out=None):
@@ -907,9 +1773,8 @@ def motor_from_line_batch(a, out=None):
     See the module docstring for dtypes and `out`.
     """
     a = _rows(a, "motor_from_line_batch", "a", 6, "line")
-    n = a.shape[0]
-    out = _result(out, "motor_from_line_batch", n, 8, "motor", a.dtype)
-    _motor_from_line_each(a.reshape(-1), out.reshape(-1), n)
+    out = _result(out, "motor_from_line_batch", a.shape[0], 8, "motor", a.dtype)
+    _motor_from_line_each(a, out)
     return out
 
 
@@ -945,13 +1810,39 @@ def invert_motor(a):
 
 
 @njit(cache=True, error_model="numpy")
-def _invert_motor_each(a, out, n):
+def _invert_motor_each(a, out):
     """invert_motor of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[8*i], out[8*i + 1], out[8*i + 2], out[8*i + 3], out[8*i + 4], out[8*i + 5],
-         out[8*i + 6], out[8*i + 7]) = invert_motor(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]))
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        t0 = a_s*a_s + a_e12*a_e12 + a_e31*a_e31 + a_e23*a_e23
+        t1 = 1/t0
+        t2 = 2*(a_s*a_e0123 - a_e01*a_e23 - a_e02*a_e31 - a_e03*a_e12)
+        t3 = t2*t1*t1
+        # s
+        out[8*i] = t1*a_s
+        # e01
+        out[8*i + 1] = -t1*a_e01 - t3*a_e23
+        # e02
+        out[8*i + 2] = -t1*a_e02 - t3*a_e31
+        # e03
+        out[8*i + 3] = -t1*a_e03 - t3*a_e12
+        # e12
+        out[8*i + 4] = -t1*a_e12
+        # e31
+        out[8*i + 5] = -t1*a_e31
+        # e23
+        out[8*i + 6] = -t1*a_e23
+        # e0123
+        out[8*i + 7] = t1*a_e0123 - t3*a_s
 
 
 def invert_motor_batch(a, out=None):
@@ -960,9 +1851,8 @@ def invert_motor_batch(a, out=None):
     See the module docstring for dtypes and `out`.
     """
     a = _rows(a, "invert_motor_batch", "a", 8, "motor")
-    n = a.shape[0]
-    out = _result(out, "invert_motor_batch", n, 8, "motor", a.dtype)
-    _invert_motor_each(a.reshape(-1), out.reshape(-1), n)
+    out = _result(out, "invert_motor_batch", a.shape[0], 8, "motor", a.dtype)
+    _invert_motor_each(a, out)
     return out
 
 
@@ -994,13 +1884,35 @@ def reverse_motor(a):
 
 
 @njit(cache=True, error_model="numpy")
-def _reverse_motor_each(a, out, n):
+def _reverse_motor_each(a, out):
     """reverse_motor of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[8*i], out[8*i + 1], out[8*i + 2], out[8*i + 3], out[8*i + 4], out[8*i + 5],
-         out[8*i + 6], out[8*i + 7]) = reverse_motor(
-            (a[8*i], a[8*i + 1], a[8*i + 2], a[8*i + 3], a[8*i + 4], a[8*i + 5], a[8*i + 6],
-             a[8*i + 7]))
+        a_s = a[8*i]
+        a_e01 = a[8*i + 1]
+        a_e02 = a[8*i + 2]
+        a_e03 = a[8*i + 3]
+        a_e12 = a[8*i + 4]
+        a_e31 = a[8*i + 5]
+        a_e23 = a[8*i + 6]
+        a_e0123 = a[8*i + 7]
+        # s
+        out[8*i] = a_s
+        # e01
+        out[8*i + 1] = -a_e01
+        # e02
+        out[8*i + 2] = -a_e02
+        # e03
+        out[8*i + 3] = -a_e03
+        # e12
+        out[8*i + 4] = -a_e12
+        # e31
+        out[8*i + 5] = -a_e31
+        # e23
+        out[8*i + 6] = -a_e23
+        # e0123
+        out[8*i + 7] = a_e0123
 
 
 def reverse_motor_batch(a, out=None):
@@ -1009,9 +1921,8 @@ def reverse_motor_batch(a, out=None):
     See the module docstring for dtypes and `out`.
     """
     a = _rows(a, "reverse_motor_batch", "a", 8, "motor")
-    n = a.shape[0]
-    out = _result(out, "reverse_motor_batch", n, 8, "motor", a.dtype)
-    _reverse_motor_each(a.reshape(-1), out.reshape(-1), n)
+    out = _result(out, "reverse_motor_batch", a.shape[0], 8, "motor", a.dtype)
+    _reverse_motor_each(a, out)
     return out
 
 
@@ -1035,11 +1946,23 @@ def complement_point(a):
 
 
 @njit(cache=True, error_model="numpy")
-def _complement_point_each(a, out, n):
+def _complement_point_each(a, out):
     """complement_point of row i of every argument, for i < n."""
+    n = out.shape[0]
+    a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        (out[4*i], out[4*i + 1], out[4*i + 2], out[4*i + 3]) = complement_point(
-            (a[4*i], a[4*i + 1], a[4*i + 2], a[4*i + 3]))
+        a_e021 = a[4*i]
+        a_e013 = a[4*i + 1]
+        a_e032 = a[4*i + 2]
+        a_e123 = a[4*i + 3]
+        # e0
+        out[4*i] = -a_e123
+        # e1
+        out[4*i + 1] = -a_e032
+        # e2
+        out[4*i + 2] = -a_e013
+        # e3
+        out[4*i + 3] = -a_e021
 
 
 def complement_point_batch(a, out=None):
@@ -1048,7 +1971,6 @@ def complement_point_batch(a, out=None):
     See the module docstring for dtypes and `out`.
     """
     a = _rows(a, "complement_point_batch", "a", 4, "point")
-    n = a.shape[0]
-    out = _result(out, "complement_point_batch", n, 4, "plane", a.dtype)
-    _complement_point_each(a.reshape(-1), out.reshape(-1), n)
+    out = _result(out, "complement_point_batch", a.shape[0], 4, "plane", a.dtype)
+    _complement_point_each(a, out)
     return out

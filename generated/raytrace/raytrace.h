@@ -21,6 +21,14 @@
  * Each kernel comes by value, raytrace_<kernel>(a, b), and as a loop over arrays,
  * raytrace_<kernel>_n(n, a, b, out) with out[i] = raytrace_<kernel>(a[i], b[i]); the arrays of
  * one call must not overlap (they are restrict pointers). Unary kernels have no b.
+ *
+ * One fixed versor on many elements (one motor, many points): each sandwich kernel also comes
+ * as raytrace_<kernel>_fixed_n(a, n, b, out), out[i] = raytrace_<kernel>(a, b[i]) for i < n, with
+ * the matrix of a computed once before the loop; b and out must not overlap. Sandwich kernels:
+ *     raytrace_translate, raytrace_rotate
+ *
+ * Written for -O3 -march=native (gcc or clang): the loops are left to the compiler's vectorizer,
+ * and multiplies and adds fuse into FMA in the GNU modes (with -std=c99, add -ffp-contract=fast).
  * Nothing is allocated; only <stddef.h> and <math.h> are included.
  */
 #ifndef raytrace_H
@@ -184,7 +192,7 @@ static inline void raytrace_up_n(size_t n,
 static inline raytrace_scalar raytrace_inner(raytrace_point a, raytrace_point b)
 {
     raytrace_scalar r;
-    r.s = a.e1*b.e1 + a.e2*b.e2 + a.e3*b.e3 - a.eo*b.ei - a.ei*b.eo;
+    r.s = a.e1*b.e1 + a.e2*b.e2 + a.e3*b.e3 + (-a.eo)*b.ei + (-a.ei)*b.eo;
     return r;
 }
 
@@ -205,16 +213,16 @@ static inline void raytrace_inner_n(size_t n,
 static inline raytrace_pair raytrace_pair_of(raytrace_point a, raytrace_point b)
 {
     raytrace_pair r;
-    r.e12 = a.e1*b.e2 - a.e2*b.e1;
-    r.e13 = a.e1*b.e3 - a.e3*b.e1;
-    r.e1o = a.e1*b.eo - a.eo*b.e1;
-    r.e1i = a.e1*b.ei - a.ei*b.e1;
-    r.e23 = a.e2*b.e3 - a.e3*b.e2;
-    r.e2o = a.e2*b.eo - a.eo*b.e2;
-    r.e2i = a.e2*b.ei - a.ei*b.e2;
-    r.e3o = a.e3*b.eo - a.eo*b.e3;
-    r.e3i = a.e3*b.ei - a.ei*b.e3;
-    r.eoi = a.eo*b.ei - a.ei*b.eo;
+    r.e12 = a.e1*b.e2 + (-a.e2)*b.e1;
+    r.e13 = a.e1*b.e3 + (-a.e3)*b.e1;
+    r.e1o = a.e1*b.eo + (-a.eo)*b.e1;
+    r.e1i = a.e1*b.ei + (-a.ei)*b.e1;
+    r.e23 = a.e2*b.e3 + (-a.e3)*b.e2;
+    r.e2o = a.e2*b.eo + (-a.eo)*b.e2;
+    r.e2i = a.e2*b.ei + (-a.ei)*b.e2;
+    r.e3o = a.e3*b.eo + (-a.eo)*b.e3;
+    r.e3i = a.e3*b.ei + (-a.ei)*b.e3;
+    r.eoi = a.eo*b.ei + (-a.ei)*b.eo;
     return r;
 }
 
@@ -235,16 +243,16 @@ static inline void raytrace_pair_of_n(size_t n,
 static inline raytrace_circle raytrace_circle_of(raytrace_pair a, raytrace_point b)
 {
     raytrace_circle r;
-    r.e123 = a.e12*b.e3 - a.e13*b.e2 + a.e23*b.e1;
-    r.e12o = a.e12*b.eo - a.e1o*b.e2 + a.e2o*b.e1;
-    r.e12i = a.e12*b.ei - a.e1i*b.e2 + a.e2i*b.e1;
-    r.e13o = a.e13*b.eo - a.e1o*b.e3 + a.e3o*b.e1;
-    r.e13i = a.e13*b.ei - a.e1i*b.e3 + a.e3i*b.e1;
-    r.e1oi = a.e1o*b.ei - a.e1i*b.eo + a.eoi*b.e1;
-    r.e23o = a.e23*b.eo - a.e2o*b.e3 + a.e3o*b.e2;
-    r.e23i = a.e23*b.ei - a.e2i*b.e3 + a.e3i*b.e2;
-    r.e2oi = a.e2o*b.ei - a.e2i*b.eo + a.eoi*b.e2;
-    r.e3oi = a.e3o*b.ei - a.e3i*b.eo + a.eoi*b.e3;
+    r.e123 = a.e12*b.e3 + (-a.e13)*b.e2 + a.e23*b.e1;
+    r.e12o = a.e12*b.eo + (-a.e1o)*b.e2 + a.e2o*b.e1;
+    r.e12i = a.e12*b.ei + (-a.e1i)*b.e2 + a.e2i*b.e1;
+    r.e13o = a.e13*b.eo + (-a.e1o)*b.e3 + a.e3o*b.e1;
+    r.e13i = a.e13*b.ei + (-a.e1i)*b.e3 + a.e3i*b.e1;
+    r.e1oi = a.e1o*b.ei + (-a.e1i)*b.eo + a.eoi*b.e1;
+    r.e23o = a.e23*b.eo + (-a.e2o)*b.e3 + a.e3o*b.e2;
+    r.e23i = a.e23*b.ei + (-a.e2i)*b.e3 + a.e3i*b.e2;
+    r.e2oi = a.e2o*b.ei + (-a.e2i)*b.eo + a.eoi*b.e2;
+    r.e3oi = a.e3o*b.ei + (-a.e3i)*b.eo + a.eoi*b.e3;
     return r;
 }
 
@@ -265,11 +273,11 @@ static inline void raytrace_circle_of_n(size_t n,
 static inline raytrace_sphere raytrace_sphere_of(raytrace_circle a, raytrace_point b)
 {
     raytrace_sphere r;
-    r.e123o = a.e123*b.eo - a.e12o*b.e3 + a.e13o*b.e2 - a.e23o*b.e1;
-    r.e123i = a.e123*b.ei - a.e12i*b.e3 + a.e13i*b.e2 - a.e23i*b.e1;
-    r.e12oi = a.e12o*b.ei - a.e12i*b.eo + a.e1oi*b.e2 - a.e2oi*b.e1;
-    r.e13oi = a.e13o*b.ei - a.e13i*b.eo + a.e1oi*b.e3 - a.e3oi*b.e1;
-    r.e23oi = a.e23o*b.ei - a.e23i*b.eo + a.e2oi*b.e3 - a.e3oi*b.e2;
+    r.e123o = a.e123*b.eo + (-a.e12o)*b.e3 + a.e13o*b.e2 + (-a.e23o)*b.e1;
+    r.e123i = a.e123*b.ei + (-a.e12i)*b.e3 + a.e13i*b.e2 + (-a.e23i)*b.e1;
+    r.e12oi = a.e12o*b.ei + (-a.e12i)*b.eo + a.e1oi*b.e2 + (-a.e2oi)*b.e1;
+    r.e13oi = a.e13o*b.ei + (-a.e13i)*b.eo + a.e1oi*b.e3 + (-a.e3oi)*b.e1;
+    r.e23oi = a.e23o*b.ei + (-a.e23i)*b.eo + a.e2oi*b.e3 + (-a.e3oi)*b.e2;
     return r;
 }
 
@@ -290,7 +298,7 @@ static inline void raytrace_sphere_of_n(size_t n,
 static inline raytrace_on_sphere_result raytrace_on_sphere(raytrace_sphere a, raytrace_point b)
 {
     raytrace_on_sphere_result r;
-    r.e123oi = a.e123o*b.ei - a.e123i*b.eo + a.e12oi*b.e3 - a.e13oi*b.e2 + a.e23oi*b.e1;
+    r.e123oi = a.e123o*b.ei + (-a.e123i)*b.eo + a.e12oi*b.e3 + (-a.e13oi)*b.e2 + a.e23oi*b.e1;
     return r;
 }
 
@@ -360,7 +368,7 @@ static inline void raytrace_translator_from_n(size_t n,
  * 6 multiplies, 2 adds. */
 static inline raytrace_rotor raytrace_rotor_from(raytrace_turn a)
 {
-    const raytrace_real t0 = -a.e12*a.e12 - a.e13*a.e13 - a.e23*a.e23;
+    const raytrace_real t0 = -a.e12*a.e12 + (-a.e13)*a.e13 + (-a.e23)*a.e23;
     const raytrace_real t1 = raytrace_exp_c(t0);
     const raytrace_real t2 = raytrace_exp_s(t0);
     raytrace_rotor r;
@@ -391,12 +399,12 @@ static inline raytrace_point raytrace_translate(raytrace_translator a, raytrace_
     const raytrace_real c_2 = a.s*c_1;
     const raytrace_real c_3 = ((raytrace_real)2.0)*a.s;
     raytrace_point r;
-    r.e1 = b.e1*c_0 - a.e1i*c_2;
-    r.e2 = b.e2*c_0 - a.e2i*c_2;
-    r.e3 = b.e3*c_0 - a.e3i*c_2;
+    r.e1 = b.e1*c_0 + (-a.e1i)*c_2;
+    r.e2 = b.e2*c_0 + (-a.e2i)*c_2;
+    r.e3 = b.e3*c_0 + (-a.e3i)*c_2;
     r.eo = b.eo*c_0;
-    r.ei = b.ei*c_0 + c_1*a.e1i*a.e1i + c_1*a.e2i*a.e2i + c_1*a.e3i*a.e3i - a.e1i*b.e1*c_3
-        - a.e2i*b.e2*c_3 - a.e3i*b.e3*c_3;
+    r.ei = b.ei*c_0 + c_1*a.e1i*a.e1i + c_1*a.e2i*a.e2i + c_1*a.e3i*a.e3i + (-a.e1i)*b.e1*c_3
+        + (-a.e2i)*b.e2*c_3 + (-a.e3i)*b.e3*c_3;
     return r;
 }
 
@@ -409,6 +417,40 @@ static inline void raytrace_translate_n(size_t n,
     size_t i;
     for (i = 0; i < n; ++i) {
         out[i] = raytrace_translate(a[i], b[i]);
+    }
+}
+
+/* raytrace_translate with one fixed versor: out[i] = raytrace_translate(a, b[i]) for i < n.
+ * The matrix of a once (14 multiplies, 2 adds), then 12 multiplies, 7 adds per element. */
+static inline void raytrace_translate_fixed_n(raytrace_translator a, size_t n,
+    const raytrace_point *raytrace_RESTRICT b,
+    raytrace_point *raytrace_RESTRICT out)
+{
+    const raytrace_real q_0 = a.s*a.e1i;
+    const raytrace_real q_1 = a.s*a.e2i;
+    const raytrace_real q_2 = a.s*a.e3i;
+    const raytrace_real q_3 = a.s*a.s;
+    const raytrace_real m0_e1 = q_3;
+    const raytrace_real m0_eo = -((raytrace_real)2.0)*q_0;
+    const raytrace_real m1_e2 = q_3;
+    const raytrace_real m1_eo = -((raytrace_real)2.0)*q_1;
+    const raytrace_real m2_e3 = q_3;
+    const raytrace_real m2_eo = -((raytrace_real)2.0)*q_2;
+    const raytrace_real m3_eo = q_3;
+    const raytrace_real m4_e1 = -((raytrace_real)2.0)*q_0;
+    const raytrace_real m4_e2 = -((raytrace_real)2.0)*q_1;
+    const raytrace_real m4_e3 = -((raytrace_real)2.0)*q_2;
+    const raytrace_real m4_eo = ((raytrace_real)2.0)*(a.e1i*a.e1i + a.e2i*a.e2i + a.e3i*a.e3i);
+    const raytrace_real m4_ei = q_3;
+    size_t i;
+    for (i = 0; i < n; ++i) {
+        raytrace_point r;
+        r.e1 = m0_e1*b[i].e1 + m0_eo*b[i].eo;
+        r.e2 = m1_e2*b[i].e2 + m1_eo*b[i].eo;
+        r.e3 = m2_e3*b[i].e3 + m2_eo*b[i].eo;
+        r.eo = m3_eo*b[i].eo;
+        r.ei = m4_e1*b[i].e1 + m4_e2*b[i].e2 + m4_e3*b[i].e3 + m4_eo*b[i].eo + m4_ei*b[i].ei;
+        out[i] = r;
     }
 }
 
@@ -458,6 +500,45 @@ static inline void raytrace_rotate_n(size_t n,
     }
 }
 
+/* raytrace_rotate with one fixed versor: out[i] = raytrace_rotate(a, b[i]) for i < n.
+ * The matrix of a once (16 multiplies, 21 adds), then 11 multiplies, 6 adds per element. */
+static inline void raytrace_rotate_fixed_n(raytrace_rotor a, size_t n,
+    const raytrace_point *raytrace_RESTRICT b,
+    raytrace_point *raytrace_RESTRICT out)
+{
+    const raytrace_real q_0 = a.e12*a.e12;
+    const raytrace_real q_1 = a.e12*a.e13;
+    const raytrace_real q_2 = a.e12*a.e23;
+    const raytrace_real q_3 = a.e13*a.e13;
+    const raytrace_real q_4 = a.e13*a.e23;
+    const raytrace_real q_5 = a.e23*a.e23;
+    const raytrace_real q_6 = a.s*a.e12;
+    const raytrace_real q_7 = a.s*a.e13;
+    const raytrace_real q_8 = a.s*a.e23;
+    const raytrace_real q_9 = a.s*a.s;
+    const raytrace_real m0_e1 = q_9 - q_0 - q_3 + q_5;
+    const raytrace_real m0_e2 = ((raytrace_real)2.0)*(q_6 - q_4);
+    const raytrace_real m0_e3 = ((raytrace_real)2.0)*(q_7 + q_2);
+    const raytrace_real m1_e1 = ((raytrace_real)2.0)*(-q_6 - q_4);
+    const raytrace_real m1_e2 = q_9 - q_0 + q_3 - q_5;
+    const raytrace_real m1_e3 = ((raytrace_real)2.0)*(q_8 - q_1);
+    const raytrace_real m2_e1 = ((raytrace_real)2.0)*(-q_7 + q_2);
+    const raytrace_real m2_e2 = ((raytrace_real)2.0)*(-q_8 - q_1);
+    const raytrace_real m2_e3 = q_9 + q_0 - q_3 - q_5;
+    const raytrace_real m3_eo = q_9 + q_0 + q_3 + q_5;
+    const raytrace_real m4_ei = q_9 + q_0 + q_3 + q_5;
+    size_t i;
+    for (i = 0; i < n; ++i) {
+        raytrace_point r;
+        r.e1 = m0_e1*b[i].e1 + m0_e2*b[i].e2 + m0_e3*b[i].e3;
+        r.e2 = m1_e1*b[i].e1 + m1_e2*b[i].e2 + m1_e3*b[i].e3;
+        r.e3 = m2_e1*b[i].e1 + m2_e2*b[i].e2 + m2_e3*b[i].e3;
+        r.eo = m3_eo*b[i].eo;
+        r.ei = m4_ei*b[i].ei;
+        out[i] = r;
+    }
+}
+
 /* left_contraction(point, sphere) -> circle: a _| b: grade s-r part of a_r b_s (zero if r > s)
  * 20 multiplies, 10 adds. */
 static inline raytrace_circle raytrace_ray_hits(raytrace_point a, raytrace_sphere b)
@@ -465,13 +546,13 @@ static inline raytrace_circle raytrace_ray_hits(raytrace_point a, raytrace_spher
     raytrace_circle r;
     r.e123 = a.eo*b.e123i + a.ei*b.e123o;
     r.e12o = a.e3*b.e123o + a.eo*b.e12oi;
-    r.e12i = a.e3*b.e123i - a.ei*b.e12oi;
+    r.e12i = a.e3*b.e123i + (-a.ei)*b.e12oi;
     r.e13o = -a.e2*b.e123o + a.eo*b.e13oi;
-    r.e13i = -a.e2*b.e123i - a.ei*b.e13oi;
-    r.e1oi = -a.e2*b.e12oi - a.e3*b.e13oi;
+    r.e13i = -a.e2*b.e123i + (-a.ei)*b.e13oi;
+    r.e1oi = -a.e2*b.e12oi + (-a.e3)*b.e13oi;
     r.e23o = a.e1*b.e123o + a.eo*b.e23oi;
-    r.e23i = a.e1*b.e123i - a.ei*b.e23oi;
-    r.e2oi = a.e1*b.e12oi - a.e3*b.e23oi;
+    r.e23i = a.e1*b.e123i + (-a.ei)*b.e23oi;
+    r.e2oi = a.e1*b.e12oi + (-a.e3)*b.e23oi;
     r.e3oi = a.e1*b.e13oi + a.e2*b.e23oi;
     return r;
 }

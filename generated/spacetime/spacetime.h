@@ -17,6 +17,14 @@
  * Each kernel comes by value, spacetime_<kernel>(a, b), and as a loop over arrays,
  * spacetime_<kernel>_n(n, a, b, out) with out[i] = spacetime_<kernel>(a[i], b[i]); the arrays of
  * one call must not overlap (they are restrict pointers). Unary kernels have no b.
+ *
+ * One fixed versor on many elements (one motor, many points): each sandwich kernel also comes
+ * as spacetime_<kernel>_fixed_n(a, n, b, out), out[i] = spacetime_<kernel>(a, b[i]) for i < n, with
+ * the matrix of a computed once before the loop; b and out must not overlap. Sandwich kernels:
+ *     spacetime_boost_event, spacetime_transform_event
+ *
+ * Written for -O3 -march=native (gcc or clang): the loops are left to the compiler's vectorizer,
+ * and multiplies and adds fuse into FMA in the GNU modes (with -std=c99, add -ffp-contract=fast).
  * Nothing is allocated; only <stddef.h> and <math.h> are included.
  */
 #ifndef spacetime_H
@@ -202,6 +210,49 @@ static inline void spacetime_boost_event_n(size_t n,
     }
 }
 
+/* spacetime_boost_event with one fixed versor: out[i] = spacetime_boost_event(a, b[i]) for i < n.
+ * The matrix of a once (22 multiplies, 12 adds), then 16 multiplies, 12 adds per element. */
+static inline void spacetime_boost_event_fixed_n(spacetime_boost a, size_t n,
+    const spacetime_event *spacetime_RESTRICT b,
+    spacetime_event *spacetime_RESTRICT out)
+{
+    const spacetime_real q_0 = a.e01*a.e01;
+    const spacetime_real q_1 = a.e01*a.e02;
+    const spacetime_real q_2 = a.e01*a.e03;
+    const spacetime_real q_3 = a.e02*a.e02;
+    const spacetime_real q_4 = a.e02*a.e03;
+    const spacetime_real q_5 = a.e03*a.e03;
+    const spacetime_real q_6 = a.s*a.e01;
+    const spacetime_real q_7 = a.s*a.e02;
+    const spacetime_real q_8 = a.s*a.e03;
+    const spacetime_real q_9 = a.s*a.s;
+    const spacetime_real m0_e0 = q_9 + q_0 + q_3 + q_5;
+    const spacetime_real m0_e1 = -((spacetime_real)2.0)*q_6;
+    const spacetime_real m0_e2 = -((spacetime_real)2.0)*q_7;
+    const spacetime_real m0_e3 = -((spacetime_real)2.0)*q_8;
+    const spacetime_real m1_e0 = -((spacetime_real)2.0)*q_6;
+    const spacetime_real m1_e1 = q_9 + q_0 - q_3 - q_5;
+    const spacetime_real m1_e2 = ((spacetime_real)2.0)*q_1;
+    const spacetime_real m1_e3 = ((spacetime_real)2.0)*q_2;
+    const spacetime_real m2_e0 = -((spacetime_real)2.0)*q_7;
+    const spacetime_real m2_e1 = ((spacetime_real)2.0)*q_1;
+    const spacetime_real m2_e2 = q_9 - q_0 + q_3 - q_5;
+    const spacetime_real m2_e3 = ((spacetime_real)2.0)*q_4;
+    const spacetime_real m3_e0 = -((spacetime_real)2.0)*q_8;
+    const spacetime_real m3_e1 = ((spacetime_real)2.0)*q_2;
+    const spacetime_real m3_e2 = ((spacetime_real)2.0)*q_4;
+    const spacetime_real m3_e3 = q_9 - q_0 - q_3 + q_5;
+    size_t i;
+    for (i = 0; i < n; ++i) {
+        spacetime_event r;
+        r.e0 = m0_e0*b[i].e0 + m0_e1*b[i].e1 + m0_e2*b[i].e2 + m0_e3*b[i].e3;
+        r.e1 = m1_e0*b[i].e0 + m1_e1*b[i].e1 + m1_e2*b[i].e2 + m1_e3*b[i].e3;
+        r.e2 = m2_e0*b[i].e0 + m2_e1*b[i].e1 + m2_e2*b[i].e2 + m2_e3*b[i].e3;
+        r.e3 = m3_e0*b[i].e0 + m3_e1*b[i].e1 + m3_e2*b[i].e2 + m3_e3*b[i].e3;
+        out[i] = r;
+    }
+}
+
 /* sandwich(lorentz, event) -> event: a b ~a (no normalization)
  * 60 multiplies, 76 adds. */
 static inline spacetime_event spacetime_transform_event(spacetime_lorentz a, spacetime_event b)
@@ -274,6 +325,71 @@ static inline void spacetime_transform_event_n(size_t n,
     }
 }
 
+/* spacetime_transform_event with one fixed versor: out[i] = spacetime_transform_event(a, b[i]) for i < n.
+ * The matrix of a once (44 multiplies, 64 adds), then 16 multiplies, 12 adds per element. */
+static inline void spacetime_transform_event_fixed_n(spacetime_lorentz a, size_t n,
+    const spacetime_event *spacetime_RESTRICT b,
+    spacetime_event *spacetime_RESTRICT out)
+{
+    const spacetime_real q_0 = a.e01*a.e01;
+    const spacetime_real q_1 = a.e01*a.e0123;
+    const spacetime_real q_2 = a.e01*a.e02;
+    const spacetime_real q_3 = a.e01*a.e03;
+    const spacetime_real q_4 = a.e01*a.e12;
+    const spacetime_real q_5 = a.e01*a.e13;
+    const spacetime_real q_6 = a.e0123*a.e0123;
+    const spacetime_real q_7 = a.e02*a.e0123;
+    const spacetime_real q_8 = a.e02*a.e02;
+    const spacetime_real q_9 = a.e02*a.e03;
+    const spacetime_real q_10 = a.e02*a.e12;
+    const spacetime_real q_11 = a.e02*a.e23;
+    const spacetime_real q_12 = a.e03*a.e0123;
+    const spacetime_real q_13 = a.e03*a.e03;
+    const spacetime_real q_14 = a.e03*a.e13;
+    const spacetime_real q_15 = a.e03*a.e23;
+    const spacetime_real q_16 = a.e12*a.e0123;
+    const spacetime_real q_17 = a.e12*a.e12;
+    const spacetime_real q_18 = a.e12*a.e13;
+    const spacetime_real q_19 = a.e12*a.e23;
+    const spacetime_real q_20 = a.e13*a.e0123;
+    const spacetime_real q_21 = a.e13*a.e13;
+    const spacetime_real q_22 = a.e13*a.e23;
+    const spacetime_real q_23 = a.e23*a.e0123;
+    const spacetime_real q_24 = a.e23*a.e23;
+    const spacetime_real q_25 = a.s*a.e01;
+    const spacetime_real q_26 = a.s*a.e02;
+    const spacetime_real q_27 = a.s*a.e03;
+    const spacetime_real q_28 = a.s*a.e12;
+    const spacetime_real q_29 = a.s*a.e13;
+    const spacetime_real q_30 = a.s*a.e23;
+    const spacetime_real q_31 = a.s*a.s;
+    const spacetime_real m0_e0 = q_31 + q_0 + q_8 + q_13 + q_17 + q_21 + q_24 + q_6;
+    const spacetime_real m0_e1 = ((spacetime_real)2.0)*(-q_25 - q_10 - q_14 - q_23);
+    const spacetime_real m0_e2 = ((spacetime_real)2.0)*(-q_26 + q_4 - q_15 + q_20);
+    const spacetime_real m0_e3 = ((spacetime_real)2.0)*(-q_27 + q_5 + q_11 - q_16);
+    const spacetime_real m1_e0 = ((spacetime_real)2.0)*(-q_25 + q_10 + q_14 - q_23);
+    const spacetime_real m1_e1 = q_31 + q_0 - q_8 - q_13 - q_17 - q_21 + q_24 + q_6;
+    const spacetime_real m1_e2 = ((spacetime_real)2.0)*(-q_28 + q_2 + q_12 - q_22);
+    const spacetime_real m1_e3 = ((spacetime_real)2.0)*(-q_29 + q_3 - q_7 + q_19);
+    const spacetime_real m2_e0 = ((spacetime_real)2.0)*(-q_26 - q_4 + q_15 + q_20);
+    const spacetime_real m2_e1 = ((spacetime_real)2.0)*(q_28 + q_2 - q_12 - q_22);
+    const spacetime_real m2_e2 = q_31 - q_0 + q_8 - q_13 - q_17 + q_21 - q_24 + q_6;
+    const spacetime_real m2_e3 = ((spacetime_real)2.0)*(-q_30 + q_1 + q_9 - q_18);
+    const spacetime_real m3_e0 = ((spacetime_real)2.0)*(-q_27 - q_5 - q_11 - q_16);
+    const spacetime_real m3_e1 = ((spacetime_real)2.0)*(q_29 + q_3 + q_7 + q_19);
+    const spacetime_real m3_e2 = ((spacetime_real)2.0)*(q_30 - q_1 + q_9 - q_18);
+    const spacetime_real m3_e3 = q_31 - q_0 - q_8 + q_13 + q_17 - q_21 - q_24 + q_6;
+    size_t i;
+    for (i = 0; i < n; ++i) {
+        spacetime_event r;
+        r.e0 = m0_e0*b[i].e0 + m0_e1*b[i].e1 + m0_e2*b[i].e2 + m0_e3*b[i].e3;
+        r.e1 = m1_e0*b[i].e0 + m1_e1*b[i].e1 + m1_e2*b[i].e2 + m1_e3*b[i].e3;
+        r.e2 = m2_e0*b[i].e0 + m2_e1*b[i].e1 + m2_e2*b[i].e2 + m2_e3*b[i].e3;
+        r.e3 = m3_e0*b[i].e0 + m3_e1*b[i].e1 + m3_e2*b[i].e2 + m3_e3*b[i].e3;
+        out[i] = r;
+    }
+}
+
 /* geometric(boost, boost) -> lorentz: a b
  * 16 multiplies, 9 adds. */
 static inline spacetime_lorentz spacetime_compose_boosts(spacetime_boost a, spacetime_boost b)
@@ -307,21 +423,21 @@ static inline void spacetime_compose_boosts_n(size_t n,
 static inline spacetime_lorentz spacetime_compose(spacetime_lorentz a, spacetime_lorentz b)
 {
     spacetime_lorentz r;
-    r.s = a.s*b.s + a.e01*b.e01 + a.e02*b.e02 + a.e03*b.e03 - a.e12*b.e12 - a.e13*b.e13
-        - a.e23*b.e23 - a.e0123*b.e0123;
-    r.e01 = a.s*b.e01 + a.e01*b.s + a.e02*b.e12 + a.e03*b.e13 - a.e12*b.e02 - a.e13*b.e03
-        - a.e23*b.e0123 - a.e0123*b.e23;
-    r.e02 = a.s*b.e02 - a.e01*b.e12 + a.e02*b.s + a.e03*b.e23 + a.e12*b.e01 + a.e13*b.e0123
-        - a.e23*b.e03 + a.e0123*b.e13;
-    r.e03 = a.s*b.e03 - a.e01*b.e13 - a.e02*b.e23 + a.e03*b.s - a.e12*b.e0123 + a.e13*b.e01
-        + a.e23*b.e02 - a.e0123*b.e12;
-    r.e12 = a.s*b.e12 - a.e01*b.e02 + a.e02*b.e01 + a.e03*b.e0123 + a.e12*b.s + a.e13*b.e23
-        - a.e23*b.e13 + a.e0123*b.e03;
-    r.e13 = a.s*b.e13 - a.e01*b.e03 - a.e02*b.e0123 + a.e03*b.e01 - a.e12*b.e23 + a.e13*b.s
-        + a.e23*b.e12 - a.e0123*b.e02;
-    r.e23 = a.s*b.e23 + a.e01*b.e0123 - a.e02*b.e03 + a.e03*b.e02 + a.e12*b.e13 - a.e13*b.e12
+    r.s = a.s*b.s + a.e01*b.e01 + a.e02*b.e02 + a.e03*b.e03 + (-a.e12)*b.e12 + (-a.e13)*b.e13
+        + (-a.e23)*b.e23 + (-a.e0123)*b.e0123;
+    r.e01 = a.s*b.e01 + a.e01*b.s + a.e02*b.e12 + a.e03*b.e13 + (-a.e12)*b.e02 + (-a.e13)*b.e03
+        + (-a.e23)*b.e0123 + (-a.e0123)*b.e23;
+    r.e02 = a.s*b.e02 + (-a.e01)*b.e12 + a.e02*b.s + a.e03*b.e23 + a.e12*b.e01 + a.e13*b.e0123
+        + (-a.e23)*b.e03 + a.e0123*b.e13;
+    r.e03 = a.s*b.e03 + (-a.e01)*b.e13 + (-a.e02)*b.e23 + a.e03*b.s + (-a.e12)*b.e0123 + a.e13*b.e01
+        + a.e23*b.e02 + (-a.e0123)*b.e12;
+    r.e12 = a.s*b.e12 + (-a.e01)*b.e02 + a.e02*b.e01 + a.e03*b.e0123 + a.e12*b.s + a.e13*b.e23
+        + (-a.e23)*b.e13 + a.e0123*b.e03;
+    r.e13 = a.s*b.e13 + (-a.e01)*b.e03 + (-a.e02)*b.e0123 + a.e03*b.e01 + (-a.e12)*b.e23 + a.e13*b.s
+        + a.e23*b.e12 + (-a.e0123)*b.e02;
+    r.e23 = a.s*b.e23 + a.e01*b.e0123 + (-a.e02)*b.e03 + a.e03*b.e02 + a.e12*b.e13 + (-a.e13)*b.e12
         + a.e23*b.s + a.e0123*b.e01;
-    r.e0123 = a.s*b.e0123 + a.e01*b.e23 - a.e02*b.e13 + a.e03*b.e12 + a.e12*b.e03 - a.e13*b.e02
+    r.e0123 = a.s*b.e0123 + a.e01*b.e23 + (-a.e02)*b.e13 + a.e03*b.e12 + a.e12*b.e03 + (-a.e13)*b.e02
         + a.e23*b.e01 + a.e0123*b.s;
     return r;
 }
@@ -342,7 +458,7 @@ static inline void spacetime_compose_n(size_t n,
  * 8 multiplies, 3 adds. */
 static inline spacetime_boost spacetime_invert_boost(spacetime_boost a)
 {
-    const spacetime_real t0 = a.s*a.s - a.e01*a.e01 - a.e02*a.e02 - a.e03*a.e03;
+    const spacetime_real t0 = a.s*a.s + (-a.e01)*a.e01 + (-a.e02)*a.e02 + (-a.e03)*a.e03;
     const spacetime_real t1 = ((spacetime_real)1.0)/t0;
     spacetime_boost r;
     r.s = t1*a.s;
@@ -368,7 +484,7 @@ static inline void spacetime_invert_boost_n(size_t n,
 static inline spacetime_interval_result spacetime_interval(spacetime_event a, spacetime_event b)
 {
     spacetime_interval_result r;
-    r.s = a.e0*b.e0 - a.e1*b.e1 - a.e2*b.e2 - a.e3*b.e3;
+    r.s = a.e0*b.e0 + (-a.e1)*b.e1 + (-a.e2)*b.e2 + (-a.e3)*b.e3;
     return r;
 }
 
@@ -389,12 +505,12 @@ static inline void spacetime_interval_n(size_t n,
 static inline spacetime_bivector spacetime_track_plane(spacetime_event a, spacetime_event b)
 {
     spacetime_bivector r;
-    r.e01 = a.e0*b.e1 - a.e1*b.e0;
-    r.e02 = a.e0*b.e2 - a.e2*b.e0;
-    r.e03 = a.e0*b.e3 - a.e3*b.e0;
-    r.e12 = a.e1*b.e2 - a.e2*b.e1;
-    r.e13 = a.e1*b.e3 - a.e3*b.e1;
-    r.e23 = a.e2*b.e3 - a.e3*b.e2;
+    r.e01 = a.e0*b.e1 + (-a.e1)*b.e0;
+    r.e02 = a.e0*b.e2 + (-a.e2)*b.e0;
+    r.e03 = a.e0*b.e3 + (-a.e3)*b.e0;
+    r.e12 = a.e1*b.e2 + (-a.e2)*b.e1;
+    r.e13 = a.e1*b.e3 + (-a.e3)*b.e1;
+    r.e23 = a.e2*b.e3 + (-a.e3)*b.e2;
     return r;
 }
 
@@ -440,9 +556,9 @@ static inline void spacetime_field_dual_n(size_t n,
 static inline spacetime_event spacetime_lorentz_force(spacetime_bivector a, spacetime_event b)
 {
     spacetime_event r;
-    r.e0 = -a.e01*b.e1 - a.e02*b.e2 - a.e03*b.e3;
-    r.e1 = -a.e01*b.e0 - a.e12*b.e2 - a.e13*b.e3;
-    r.e2 = -a.e02*b.e0 + a.e12*b.e1 - a.e23*b.e3;
+    r.e0 = -a.e01*b.e1 + (-a.e02)*b.e2 + (-a.e03)*b.e3;
+    r.e1 = -a.e01*b.e0 + (-a.e12)*b.e2 + (-a.e13)*b.e3;
+    r.e2 = -a.e02*b.e0 + a.e12*b.e1 + (-a.e23)*b.e3;
     r.e3 = -a.e03*b.e0 + a.e13*b.e1 + a.e23*b.e2;
     return r;
 }
@@ -466,8 +582,8 @@ static inline spacetime_event spacetime_fat_dot_event(spacetime_event a, spaceti
     spacetime_event r;
     r.e0 = a.e1*b.e01 + a.e2*b.e02 + a.e3*b.e03;
     r.e1 = a.e0*b.e01 + a.e2*b.e12 + a.e3*b.e13;
-    r.e2 = a.e0*b.e02 - a.e1*b.e12 + a.e3*b.e23;
-    r.e3 = a.e0*b.e03 - a.e1*b.e13 - a.e2*b.e23;
+    r.e2 = a.e0*b.e02 + (-a.e1)*b.e12 + a.e3*b.e23;
+    r.e3 = a.e0*b.e03 + (-a.e1)*b.e13 + (-a.e2)*b.e23;
     return r;
 }
 
@@ -488,9 +604,9 @@ static inline void spacetime_fat_dot_event_n(size_t n,
 static inline spacetime_event spacetime_right_contract(spacetime_bivector a, spacetime_event b)
 {
     spacetime_event r;
-    r.e0 = -a.e01*b.e1 - a.e02*b.e2 - a.e03*b.e3;
-    r.e1 = -a.e01*b.e0 - a.e12*b.e2 - a.e13*b.e3;
-    r.e2 = -a.e02*b.e0 + a.e12*b.e1 - a.e23*b.e3;
+    r.e0 = -a.e01*b.e1 + (-a.e02)*b.e2 + (-a.e03)*b.e3;
+    r.e1 = -a.e01*b.e0 + (-a.e12)*b.e2 + (-a.e13)*b.e3;
+    r.e2 = -a.e02*b.e0 + a.e12*b.e1 + (-a.e23)*b.e3;
     r.e3 = -a.e03*b.e0 + a.e13*b.e1 + a.e23*b.e2;
     return r;
 }

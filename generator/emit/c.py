@@ -6,6 +6,15 @@ components are read straight from the structs (`a.e12`): the printer renames the
 `a_e12` variables, so no local goes unused and `-Wall -Wextra` stays quiet.  Every name the
 header declares starts with the algebra's name; `check_unique` turns a clash between two of
 them (a type `x` and a kernel `x`, a kernel `x_n` beside a kernel `x`) into a spec error.
+A sandwich kernel also gets `NAME_<kernel>_fixed_n(a, n, b, out)`, one fixed versor applied to n
+elements, printed from `Kernel.one_to_many`: the matrix of `a` before the loop, M b inside it.
+
+The header is written for `-O3 -march=native` (gcc or clang; FMA contraction in the GNU modes or
+with `-ffp-contract=fast`): the `_n` loops are plain loops over restrict pointers to structs,
+left to the compiler's vectorizer.  A negative product inside a sum is printed `+ (-x)*y`, not
+`- x*y`: every term of a bilinear product is then the same operation, and gcc 12 vectorizes such
+loops across elements (four rotor products per step) instead of within one element, which
+measured 25% faster for the rotor product at N = 10^4 (issue 8).
 
 The scalar type is `[targets.c] real`, overridable by defining `NAME_REAL` before the include;
 number literals are cast to it.  Math functions go through small helpers that compute in
@@ -15,8 +24,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from ..ir import Call, Div, Kernel, Module, Prod, Sum, Var
-from .base import Emitter, KernelView, check_unique, helper_views, kernel_keys
+from ..ir import Call, Counts, Div, Kernel, Module, Prod, Sum, Var
+from ..optimize import program_cost
+from .base import Emitter, KernelView, OutputView, check_unique, helper_views, kernel_keys
 from .printer import Printer, Syntax, c_double, c_number
 
 # ir.Call functions with a C spelling: tree name -> (libm function, arity)
@@ -37,6 +47,13 @@ class FieldPrinter(Printer):
         if isinstance(node, Var) and node.name in self.fields:
             return self.fields[node.name]
         return super().expr(node, prec)
+
+    def piece(self, i: int, sign: int, term) -> str:
+        """A negative product after the first term as `+ (-x)*y` (see the module docstring)."""
+        if i and sign < 0 and isinstance(term, Prod) and isinstance(term.factors[0], Var):
+            first, *rest = (self.expr(f, 2) for f in term.factors)
+            return " + " + "*".join([f"(-{first})", *rest])
+        return super().piece(i, sign, term)
 
 
 def variables(node):
@@ -62,6 +79,18 @@ class MathView:
 
 
 @dataclass(frozen=True)
+class FixedView:
+    """`NAME_<kernel>_fixed_n` of a sandwich kernel, printed from Kernel.one_to_many."""
+
+    params: tuple[str, ...]     # "drone_rotor a", "size_t n", "const drone_vec *drone_RESTRICT b", ...
+    unused: tuple[str, ...]
+    temps: tuple[OutputView, ...]       # the matrix of `a`, before the loop
+    outputs: tuple[OutputView, ...]     # M b[i], inside it
+    once: Counts                # operations before the loop
+    per_row: Counts             # operations per element
+
+
+@dataclass(frozen=True)
 class CKernelView:
     view: KernelView            # printed temps and outputs
     name: str                   # "drone_compose"
@@ -70,6 +99,7 @@ class CKernelView:
     unused: tuple[str, ...]     # arguments no formula reads
     loop_params: tuple[str, ...]    # "const drone_rotor *drone_RESTRICT a", ...
     call: str                   # "a[i], b[i]"
+    fixed: FixedView | None = None      # sandwich kernels: one versor on n elements
 
 
 class CEmitter(Emitter):
@@ -109,10 +139,27 @@ class CEmitter(Emitter):
         unused = tuple(a.name for a in args if not read & set(a.locals))
         result = f"{p}_{kernel.result}"
         loop = tuple(f"const {p}_{a.type} *{p}_RESTRICT {a.name}" for a in args)
+        fixed = self.fixed_view(module, kernel, printer, args) if kernel.one_to_many else None
         return CKernelView(view, f"{p}_{kernel.name}", result,
                            ", ".join(f"{p}_{a.type} {a.name}" for a in args), unused,
                            loop + (f"{result} *{p}_RESTRICT out",),
-                           ", ".join(f"{a.name}[i]" for a in args))
+                           ", ".join(f"{a.name}[i]" for a in args), fixed)
+
+    def fixed_view(self, module: Module, kernel: Kernel, printer: FieldPrinter, args) -> FixedView:
+        """The one-versor loop: `a` by value, `b[i]` read field by field inside the loop."""
+        p, (a, b), prog = module.name, args, kernel.one_to_many
+        printer.fields = {loc: f"{a.name}.{f}" for loc, f in zip(a.locals, a.fields)}
+        printer.fields.update({loc: f"{b.name}[i].{f}" for loc, f in zip(b.locals, b.fields)})
+        temps = tuple(OutputView(t.target, printer.wrapped(t.expr, self.indent * 2))
+                      for t in prog.temps)
+        outputs = tuple(OutputView(o.target, printer.wrapped(o.expr, self.indent * 3))
+                        for o in prog.outputs)
+        read = {v for asg in prog.temps + prog.outputs for v in variables(asg.expr)}
+        unused = tuple(x.name for x in (a, b) if not read & set(x.locals))
+        params = (f"{p}_{a.type} {a.name}", "size_t n", f"const {p}_{b.type} *{p}_RESTRICT {b.name}",
+                  f"{p}_{kernel.result} *{p}_RESTRICT out")
+        return FixedView(params, unused, temps, outputs, program_cost(prog.temps, ()),
+                         program_cost((), prog.outputs))
 
     @staticmethod
     def math_views(module: Module, used) -> tuple[MathView, ...]:
@@ -137,4 +184,6 @@ class CEmitter(Emitter):
                  for t in module.types]
         kernels = [(f"{p}_{k.name}{suffix}", key, what) for key, k in kernel_keys(module)
                    for suffix, what in (("", "by-value function"), ("_n", "array loop"))]
+        kernels += [(f"{p}_{k.name}_fixed_n", key, "one-versor loop")
+                    for key, k in kernel_keys(module) if k.one_to_many is not None]
         return fixed + types + kernels

@@ -2,28 +2,35 @@
 
 Every kernel is the Python target's function under `@njit(cache=True)` (same calling convention:
 sequences in, a tuple out).  `<kernel>_batch(a, b, out=None)` checks its arguments in plain
-Python (shapes, dtypes, layout: a `ValueError` that names the argument and the expected shape),
-then runs one of a few small compiled loops over the flattened (N*k,) views of the arrays:
+Python (shapes, dtypes, layout: a `ValueError` that names the argument and the expected shape;
+well-formed arrays take a short path first), then runs one of a few compiled loops, which
+flatten their (N, k) arguments:
 
 - `_<kernel>_each`: every argument has N rows;
 - `_<kernel>_one_a` / `_<kernel>_one_b`: that argument is a single element, read once before the
-  loop (no per-element branch, no stride-0 indexing).
+  loop (no per-element branch, no stride-0 indexing).  For a sandwich kernel, `_one_a` is printed
+  from `Kernel.one_to_many`: the matrix of the one versor is computed before the loop, and each
+  row costs only that matrix applied to it (one motor, many points).
 
-A loop reads each row's components into a tuple at constant offsets (`a[4*i + 1]`), calls the
-scalar kernel (which LLVM inlines) and unpacks the result into `out`; this layout lets LLVM
-vectorize the interleaved loads and stores, which indexing an (N, k) array by `[i, j]` does not.
+Each loop spells the kernel's formulas out in its body: a row's components are read into
+locals at constant offsets (`a[4*i + 1]`), then each result component is stored.  Calling the
+scalar kernel instead left long kernels as a call per row (too long for LLVM's inliner: 4x
+slower for the spacetime sandwich).  There is no fast-math, not even FMA contraction: with it
+the same row could round differently in different loops (which products fuse depends on the
+code around them), and broadcasting one element would no longer equal repeating it.
 """
 from __future__ import annotations
 
 from dataclasses import dataclass
 
-from ..ir import Kernel, Module
-from .base import Emitter, check_unique, helper_views, kernel_keys
-from .printer import WIDTH, Printer, Syntax, python_number
+from ..ir import Kernel, Module, Program
+from ..optimize import program_cost
+from .base import (ArgView, Emitter, OutputView, check_unique, helper_views, kernel_keys)
+from .printer import Printer, Syntax, python_number
 from .python import PY_FUNCTIONS
 
 DECORATOR = '@njit(cache=True, error_model="numpy")'
-LOOP_COLUMN = 12                # where a loop's call arguments start
+PAD = "    "
 
 
 @dataclass(frozen=True)
@@ -34,12 +41,21 @@ class BatchArg:
 
 
 @dataclass(frozen=True)
+class BodyView:
+    """The statements of one loop: what is read and computed once, then what is done per row."""
+
+    once: tuple[OutputView, ...]        # a single element's components; a sandwich's matrix
+    load: tuple[OutputView, ...]        # b_e1 = b[3*i], ...: the row's components
+    temps: tuple[OutputView, ...]       # the kernel's temporaries, per row
+    stores: tuple[OutputView, ...]      # out[3*i + 1] = the formula of that component
+    comps: tuple[str, ...]              # the result component of each store (comments)
+
+
+@dataclass(frozen=True)
 class LoopView:
     name: str                   # "_compose_each"
     doc: str
-    hoist: str                  # "(a[0], a[1])" for a single-element argument, else ""
-    store: str                  # "(out[4*i], ...)"
-    loads: tuple[str, ...]      # one tuple per argument ("t" for the hoisted one)
+    body: BodyView
 
 
 @dataclass(frozen=True)
@@ -61,21 +77,11 @@ def components(name: str, k: int, row: str) -> list[str]:
     return [f"{name}[{first} + {j}]" if j else f"{name}[{first}]" for j in range(k)]
 
 
-def wrapped_tuple(items: list[str], column: int, tail: int = 0) -> str:
-    """'(x, y, ...)' opened at `column` (a 1-tuple keeps its comma), broken after commas so that
-    no line passes WIDTH, leaving `tail` characters free after the last; continuation lines line
-    up inside the parenthesis."""
-    if len(items) == 1:
-        return f"({items[0]},)"
-    lines, line = [], "(" + items[0]
-    for i, item in enumerate(items[1:], 2):
-        if column + len(line) + len(item) + 3 + (tail if i == len(items) else 0) > WIDTH:
-            lines.append(line + ",")
-            line = item
-        else:
-            line += ", " + item
-    lines.append(line + ")")
-    return ("\n" + " " * (column + 1)).join(lines)
+def counted(program: Program) -> tuple[str, str]:
+    """('25 multiplies, 21 adds' of the temporaries, the same of the outputs)."""
+    def text(c):
+        return f"{c.mul} multiplies, {c.add} adds"
+    return text(program_cost(program.temps, ())), text(program_cost((), program.outputs))
 
 
 class NumbaEmitter(Emitter):
@@ -88,8 +94,8 @@ class NumbaEmitter(Emitter):
     def files(self, module: Module) -> dict[str, str]:
         check_unique(module, self.target, self.public_names(module))
         printer = Printer(self.syntax())
-        entries = [(self.kernel_view(module, k, printer, self.indent * 2), self.batch_view(module, k))
-                   for k in module.kernels]
+        entries = [(self.kernel_view(module, k, printer, PAD * 2),
+                    self.batch_view(module, k, printer)) for k in module.kernels]
         helpers = helper_views(printer, printer.used)
         imports = sorted({"math"} if printer.used - {"abs"} else set())
         text = self.render(self.template, banner=self.banner(module), module=module.name,
@@ -104,28 +110,52 @@ class NumbaEmitter(Emitter):
             names += [(k.name, key, "kernel"), (f"{k.name}_batch", key, "batch function")]
         return names
 
-    def batch_view(self, module: Module, kernel: Kernel) -> BatchView:
+    def batch_view(self, module: Module, kernel: Kernel, printer: Printer) -> BatchView:
         args = tuple(BatchArg(n, t, len(module.type(t).components))
                      for n, t in zip(kernel.arg_names, kernel.args))
         k = len(module.type(kernel.result).components)
         singles = ("",) + (tuple(a.name for a in args) if len(args) == 2 else ())
-        loops = tuple(self.loop_view(kernel, args, k, single) for single in singles)
+        loops = tuple(self.loop_view(module, kernel, printer, single) for single in singles)
         shapes = ", ".join(f"{a.name} (N, {a.k}) {a.type}" for a in args)
         doc = f"{kernel.name} over rows: {shapes} -> (N, {k}) {kernel.result}."
         return BatchView(f"{kernel.name}_batch", doc, ", ".join(a.name for a in args), args,
                          kernel.result, k, loops)
 
+    def loop_view(self, module: Module, kernel: Kernel, printer: Printer, single: str) -> LoopView:
+        """`_<kernel>_each` (single "") or `_<kernel>_one_<single>`, formulas in the loop body."""
+        args = [self.arg_view(module, n, t) for n, t in zip(kernel.arg_names, kernel.args)]
+        fixed = single == "a" and kernel.one_to_many is not None
+        prog = kernel.one_to_many if fixed else kernel.program
+        result = [c.ident for c in module.type(kernel.result).components]
+        once = [u for a in args if a.name == single for u in self.unpacked(a, "0")]
+        hoisted = self.printed(printer, prog.temps, 2) if fixed else ()
+        body = BodyView(
+            once=tuple(once) + hoisted,
+            load=tuple(u for a in args if a.name != single for u in self.unpacked(a, "i")),
+            temps=() if fixed else self.printed(printer, prog.temps, 3),
+            stores=tuple(OutputView(at, printer.wrapped(o.expr, PAD * 3))
+                         for at, o in zip(components("out", len(result), "i"), prog.outputs)),
+            comps=tuple(result))
+        return LoopView(f"_{kernel.name}_{f'one_{single}' if single else 'each'}",
+                        self.loop_doc(kernel, single, fixed), body)
+
     @staticmethod
-    def loop_view(kernel: Kernel, args: tuple[BatchArg, ...], k: int, single: str) -> LoopView:
-        suffix = f"one_{single}" if single else "each"
-        doc = (f"{kernel.name} of one `{single}` with each row of the other argument." if single
-               else f"{kernel.name} of row i of every argument, for i < n.")
-        hoist, loads = "", []
-        for a in args:
-            if a.name == single:
-                hoist = wrapped_tuple(components(a.name, a.k, "0"), len("    t = "))
-                loads.append("t")
-            else:
-                loads.append(wrapped_tuple(components(a.name, a.k, "i"), LOOP_COLUMN))
-        store = wrapped_tuple(components("out", k, "i"), 8, tail=len(f" = {kernel.name}("))
-        return LoopView(f"_{kernel.name}_{suffix}", doc, hoist, store, tuple(loads))
+    def loop_doc(kernel: Kernel, single: str, fixed: bool) -> str:
+        if fixed:
+            once, per_row = counted(kernel.one_to_many)
+            return (f"{kernel.name} of one `a` with each row of `b`: the matrix of `a` once "
+                    f"({once}),\n    then {per_row} per row.")
+        if single:
+            return f"{kernel.name} of one `{single}` with each row of the other argument."
+        return f"{kernel.name} of row i of every argument, for i < n."
+
+    @staticmethod
+    def printed(printer: Printer, assignments, depth: int) -> tuple[OutputView, ...]:
+        """Temporaries printed for a loop at `depth` indents (wrapped lines one deeper)."""
+        return tuple(OutputView(a.target, printer.wrapped(a.expr, PAD * depth)) for a in assignments)
+
+    @staticmethod
+    def unpacked(arg: ArgView, row: str) -> tuple[OutputView, ...]:
+        """One `a_e12 = a[4*i + 1]` per component (row "0": the single element)."""
+        return tuple(OutputView(local, item) for local, item in
+                     zip(arg.locals, components(arg.name, len(arg.fields), row)))

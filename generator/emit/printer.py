@@ -82,14 +82,14 @@ class Printer:
         raise TypeError(f"cannot print {node!r}")
 
     def _sum(self, node: Sum) -> str:
-        parts = []
-        for i, (sign, term) in enumerate(node.terms):
-            body = self.expr(term, 2)
-            if i == 0:
-                parts.append(f"-{body}" if sign < 0 else body)
-            else:
-                parts.append(f" - {body}" if sign < 0 else f" + {body}")
-        return "".join(parts)
+        return "".join(self.piece(i, sign, term) for i, (sign, term) in enumerate(node.terms))
+
+    def piece(self, i: int, sign: int, term) -> str:
+        """Term i of a sum with its operator: "a*b", "-a*b", " + a*b" or " - a*b"."""
+        body = self.expr(term, 2)
+        if i == 0:
+            return f"-{body}" if sign < 0 else body
+        return f" - {body}" if sign < 0 else f" + {body}"
 
     def wrapped(self, node, indent: str) -> str:
         """The expression, broken at top-level term boundaries when longer than WIDTH."""
@@ -97,9 +97,7 @@ class Printer:
             return self.expr(node)
         lines, line = [], ""
         for i, (sign, term) in enumerate(node.terms):
-            body = self.expr(term, 2)
-            piece = (f"-{body}" if sign < 0 else body) if i == 0 else (
-                f" - {body}" if sign < 0 else f" + {body}")
+            piece = self.piece(i, sign, term)
             if line and len(indent) + len(line) + len(piece) > WIDTH:
                 lines.append(line)
                 line = piece.lstrip()
