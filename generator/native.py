@@ -89,7 +89,8 @@ def wrapper_source(module: Module) -> str:
         call = f"{p}_{k.name}_n(n, {', '.join(n for n, _ in args)}, out)"
         wrappers.append(Wrapper(f"{prefix}{i}", params, call))
         if k.one_to_many is not None:
-            wrappers.append(Wrapper(f"{prefix}fixed_{i}", params, f"{p}_{k.name}_fixed_n(*a, n, b, out)"))
+            call = f"{p}_{k.name}_fixed_n(*a, n, b, out)"
+            wrappers.append(Wrapper(f"{prefix}fixed_{i}", params, call))
     return environment().get_template("c/wrapper.c.j2").render(
         module=p, header=f"{p}.h", prefix=prefix, types=[t.name for t in module.types],
         wrappers=wrappers)
@@ -177,7 +178,8 @@ def c_runners(module: Module, out_dir: Path):
     """The C target through the compiled `_n` loops; a float build is also compiled as double."""
     lib = compile_library(module, out_dir)
     if lib.real == 8:
-        return [("c", lib.run, DOUBLE_REL, ""), ("c fixed_n", lib.run_fixed, DOUBLE_REL, FIXED_NOTE)]
+        return [("c", lib.run, DOUBLE_REL, ""),
+                ("c fixed_n", lib.run_fixed, DOUBLE_REL, FIXED_NOTE)]
     exact = compile_library(module, out_dir, real="double")
     rel = float_tolerance(exact)
     return [("c (float)", lib.run, rel, FLOAT_NOTE),
@@ -254,7 +256,8 @@ def numba_runners(module: Module, out_dir: Path):
 
     return [("numba", scalar, DOUBLE_REL, ""), ("numba batch", batch, DOUBLE_REL, ""),
             ("numba broadcast", broadcast, DOUBLE_REL, "one element (k,) or (1, k) against N"),
-            ("numba one versor", one_versor, DOUBLE_REL, FIXED_NOTE), ("numba out=", into, DOUBLE_REL, "")]
+            ("numba one versor", one_versor, DOUBLE_REL, FIXED_NOTE),
+            ("numba out=", into, DOUBLE_REL, "")]
 
 
 def single_row(inputs: list[np.ndarray], i: int) -> list[np.ndarray]:

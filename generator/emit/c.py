@@ -82,7 +82,7 @@ class MathView:
 class FixedView:
     """`NAME_<kernel>_fixed_n` of a sandwich kernel, printed from Kernel.one_to_many."""
 
-    params: tuple[str, ...]     # "drone_rotor a", "size_t n", "const drone_vec *drone_RESTRICT b", ...
+    params: tuple[str, ...]     # "drone_rotor a", "size_t n", "const drone_vec *drone_RESTRICT b"
     unused: tuple[str, ...]
     temps: tuple[OutputView, ...]       # the matrix of `a`, before the loop
     outputs: tuple[OutputView, ...]     # M b[i], inside it
@@ -156,8 +156,8 @@ class CEmitter(Emitter):
                         for o in prog.outputs)
         read = {v for asg in prog.temps + prog.outputs for v in variables(asg.expr)}
         unused = tuple(x.name for x in (a, b) if not read & set(x.locals))
-        params = (f"{p}_{a.type} {a.name}", "size_t n", f"const {p}_{b.type} *{p}_RESTRICT {b.name}",
-                  f"{p}_{kernel.result} *{p}_RESTRICT out")
+        params = (f"{p}_{a.type} {a.name}", "size_t n",
+                  f"const {p}_{b.type} *{p}_RESTRICT {b.name}", f"{p}_{kernel.result} *{p}_RESTRICT out")
         return FixedView(params, unused, temps, outputs, program_cost(prog.temps, ()),
                          program_cost((), prog.outputs))
 
