@@ -53,7 +53,8 @@ def check_names(model: Model, inferred: tuple[tuple[TypeDef, str], ...] = ()) ->
                                     f"{identifier_problem(k.name)}; give the kernel a 'name'")
     types = {t.name: t.key for t in spec.types} | {t.name: key for t, key in inferred}
     kernels = {k.name: k.key for k in spec.kernels}
-    for target, rows, problem in (("C", c_names(spec.name, types, kernels), c_problem),
+    fixed = {k.name for k in spec.kernels if k.op == "sandwich"}
+    for target, rows, problem in (("C", c_names(spec.name, types, kernels, fixed), c_problem),
                                   ("Python", python_names(kernels), python_problem)):
         found = clash(target, rows, problem)
         if found:

@@ -114,13 +114,16 @@ def python_problem(ident: str) -> str | None:
     return None
 
 
-def c_names(algebra: str, types: dict, kernels: dict) -> list[tuple[str, str, str]]:
-    """(identifier, key, what) for every global C name; `types`/`kernels` map name -> key."""
+def c_names(algebra: str, types: dict, kernels: dict, fixed=()) -> list[tuple[str, str, str]]:
+    """(identifier, key, what) for every global C name the header declares; `types`/`kernels`
+    map name -> key, `fixed` names the kernels (sandwiches) that also get a `_fixed_n` loop."""
     rows = [(f"{algebra}_{name}", "algebra.name", what) for name, what in C_OWN.items()]
     rows += [(f"{algebra}_{t}", key, f"type {t!r}") for t, key in types.items()]
     for k, key in kernels.items():
         rows += [(f"{algebra}_{k}", key, f"kernel {k!r}"),
                  (f"{algebra}_{k}_n", key, f"the array form of kernel {k!r}")]
+        if k in fixed:
+            rows.append((f"{algebra}_{k}_fixed_n", key, f"the one-versor loop of kernel {k!r}"))
     return rows
 
 

@@ -28,8 +28,8 @@ from pathlib import Path
 import numpy as np
 
 from .emit.base import environment
-from .emit.c import C_MATH, HELPER_FUNCTIONS, CEmitter
 from .ir import Kernel, Module
+from .names import c_names
 
 DOUBLE_REL = 1e-10
 FLOAT_EPS = float(np.finfo(np.float32).eps)     # 2^-23
@@ -72,7 +72,10 @@ class Wrapper:
 
 def symbol_prefix(module: Module) -> str:
     """A prefix for the wrapper's symbols that no name in the header starts with."""
-    taken = {name for name, _, _ in CEmitter.header_names(module, set(C_MATH) | set(HELPER_FUNCTIONS))}
+    fixed = {k.name for k in module.kernels if k.one_to_many is not None}
+    rows = c_names(module.name, {t.name: "" for t in module.types},
+                   {k.name: "" for k in module.kernels}, fixed)
+    taken = {name for name, _, _ in rows}
     prefix = "bladesmith_verify_"
     while any(name.startswith(prefix) for name in taken):
         prefix = "x" + prefix

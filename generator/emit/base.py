@@ -16,7 +16,6 @@ import jinja2
 
 from ..ir import Call, Div, Kernel, Module, Num, Prod, Sum, Var
 from ..names import comment_text
-from ..spec import SpecError
 from .printer import Printer, Syntax
 
 
@@ -113,25 +112,6 @@ class Emitter:
     @staticmethod
     def type_rows(module: Module) -> list[tuple[str, tuple[str, ...]]]:
         return [(t.name, tuple(c.ident for c in t.components)) for t in module.types]
-
-
-# --- emitted names must not coincide -------------------------------------------------------------
-
-def check_unique(module: Module, target: str, names) -> None:
-    """Raise a SpecError when two (emitted name, spec key, what) entries share an emitted name."""
-    seen: dict[str, tuple[str, str]] = {}
-    for name, key, what in names:
-        if name in seen:
-            other_key, other_what = seen[name]
-            raise SpecError(module.spec_path, key,
-                            f"its {what} would be named {name!r} in the {target} target, like the "
-                            f"{other_what} of {other_key}; rename one of them")
-        seen[name] = (key, what)
-
-
-def kernel_keys(module: Module) -> list[tuple[str, Kernel]]:
-    """(spec key, kernel) in spec order: kernels[0], kernels[1], ..."""
-    return [(f"kernels[{i}]", k) for i, k in enumerate(module.kernels)]
 
 
 # --- runtime helpers: the `ir.Call` functions an emitted file defines when a kernel uses them ------

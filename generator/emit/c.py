@@ -4,8 +4,9 @@ One struct per type (a `NAME_real` field per component, named by the component's
 and per kernel a by-value `static inline` function plus an `_n` loop over arrays.  Argument
 components are read straight from the structs (`a.e12`): the printer renames the IR's
 `a_e12` variables, so no local goes unused and `-Wall -Wextra` stays quiet.  Every name the
-header declares starts with the algebra's name; `check_unique` turns a clash between two of
-them (a type `x` and a kernel `x`, a kernel `x_n` beside a kernel `x`) into a spec error.
+header declares starts with the algebra's name; `names.c_names` lists them all, and
+`model.check_names` turns a clash (a type `x` and a kernel `x`, a kernel `x_n` beside a kernel
+`x`) into a located spec error before anything is derived.
 A sandwich kernel also gets `NAME_<kernel>_fixed_n(a, n, b, out)`, one fixed versor applied to n
 elements, printed from `Kernel.one_to_many`: the matrix of `a` before the loop, M b inside it.
 
@@ -26,7 +27,7 @@ from dataclasses import dataclass
 
 from ..ir import Call, Counts, Div, Kernel, Module, Prod, Sum, Var
 from ..optimize import program_cost
-from .base import Emitter, KernelView, OutputView, check_unique, helper_views, kernel_keys
+from .base import Emitter, KernelView, OutputView, helper_views
 from .printer import Printer, Syntax, c_double, c_number
 
 # ir.Call functions with a C spelling: tree name -> (libm function, arity)
@@ -121,7 +122,6 @@ class CEmitter(Emitter):
         unknown = sorted(printer.used - set(C_MATH) - set(HELPER_FUNCTIONS))
         if unknown:
             raise ValueError(f"the C target has no spelling for the function(s) {unknown}")
-        check_unique(module, self.target, self.header_names(module, printer.used))
         helpers = helper_views(Printer(Syntax(c_double)), printer.used)
         text = self.render(self.template, banner=self.banner(module), module=module.name,
                            real=self.real, types=self.type_rows(module), kernels=kernels,
@@ -172,18 +172,3 @@ class CEmitter(Emitter):
                                       f"{cfn}({', '.join(f'(double){x}' for x in params)})"))
         return tuple(views)
 
-    @staticmethod
-    def header_names(module: Module, used):
-        """(identifier, spec key, what) for everything the header declares."""
-        p = module.name
-        fixed = [(f"{p}_{x}", "algebra.name", what) for x, what in
-                 (("H", "include guard"), ("REAL", "scalar type macro"), ("real", "scalar type"),
-                  ("RESTRICT", "restrict macro"))]
-        fixed += [(f"{p}_{fn}", "algebra.name", f"math helper {fn}") for fn in sorted(used)]
-        types = [(f"{p}_{t.name}", f"types.{t.name}" if t.declared else "kernels", "struct type")
-                 for t in module.types]
-        kernels = [(f"{p}_{k.name}{suffix}", key, what) for key, k in kernel_keys(module)
-                   for suffix, what in (("", "by-value function"), ("_n", "array loop"))]
-        kernels += [(f"{p}_{k.name}_fixed_n", key, "one-versor loop")
-                    for key, k in kernel_keys(module) if k.one_to_many is not None]
-        return fixed + types + kernels

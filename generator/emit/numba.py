@@ -31,7 +31,7 @@ from dataclasses import dataclass
 
 from ..ir import Kernel, Module, Program
 from ..optimize import program_cost
-from .base import (ArgView, Emitter, OutputView, check_unique, helper_views, kernel_keys)
+from .base import ArgView, Emitter, OutputView, helper_views
 from .printer import Printer, Syntax, python_number
 from .python import PY_FUNCTIONS
 
@@ -98,7 +98,6 @@ class NumbaEmitter(Emitter):
         return Syntax(python_number, PY_FUNCTIONS)
 
     def files(self, module: Module) -> dict[str, str]:
-        check_unique(module, self.target, self.public_names(module))
         printer = Printer(self.syntax())
         entries = [(self.kernel_view(module, k, printer, PAD * 2),
                     self.batch_view(module, k, printer)) for k in module.kernels]
@@ -108,13 +107,6 @@ class NumbaEmitter(Emitter):
                            types=self.type_rows(module), entries=entries, helpers=helpers,
                            imports=imports, decorator=DECORATOR)
         return {f"{module.name}_numba.py": text}
-
-    @staticmethod
-    def public_names(module: Module):
-        names = [("TYPES", "(module)", "type table"), ("KERNELS", "(module)", "kernel table")]
-        for key, k in kernel_keys(module):
-            names += [(k.name, key, "kernel"), (f"{k.name}_batch", key, "batch function")]
-        return names
 
     def batch_view(self, module: Module, kernel: Kernel, printer: Printer) -> BatchView:
         args = tuple(BatchArg(n, t, len(module.type(t).components))
