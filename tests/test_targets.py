@@ -35,6 +35,7 @@ from click.testing import CliRunner
 from generator import native, pipeline, spec as spec_mod, verify
 from generator.cli import main
 from generator.emit import emitter
+from generator.emit.numba import LONG_ROW
 from generator.files import write_files
 from generator.optimize import count
 from generator.ir import (Assignment, Call, Component, Counts, Div, Kernel, Module, Num, Prod,
@@ -170,6 +171,44 @@ def test_numba_kernels_are_cached_njit_functions(example):
             kw.arg == "cache" and kw.value.value is True for kw in dec.keywords), k.name
         assert decorated[f"{k.name}_batch"] == []       # plain Python: it checks, then loops
 
+
+
+def test_numba_loops_run_backwards_exactly_over_long_rows(example):
+    # emit/numba.py: a loop whose row loads and stores LONG_ROW or more components runs from the
+    # last row to the first, every other loop from the first to the last (read from the text)
+    _, module, out = example
+    tree = ast.parse((out / f"{module.name}_numba.py").read_text())
+    loops = [f for f in tree.body if isinstance(f, ast.FunctionDef)
+             and (f.name.endswith("_each") or "_one_" in f.name)]
+    assert loops
+    for fn in loops:
+        (loop,) = [s for s in fn.body if isinstance(s, ast.For)]
+        assigned = [s for s in loop.body if isinstance(s, ast.Assign)]
+        loads = sum(isinstance(s.value, ast.Subscript) for s in assigned)
+        stores = sum(isinstance(s.targets[0], ast.Subscript) for s in assigned)
+        rows = ast.unparse(loop.iter)
+        want = "range(n - 1, -1, -1)" if loads + stores >= LONG_ROW else "range(n)"
+        assert rows == want, (fn.name, loads, stores)
+
+
+def test_batch_may_write_over_its_first_argument(example):
+    # each row is read whole before it is written, so out=a gives the same rows in either loop
+    # direction (forward and backward loops both occur in the examples)
+    _, module, out = example
+    nb = native.load_numba(out / f"{module.name}_numba.py")
+    width = {t.name: len(t.components) for t in module.types}
+    g = np.random.default_rng(31)
+    checked = 0
+    for k in (k for k in module.kernels if len(k.args) == 2):
+        if width[k.args[0]] != width[k.result]:
+            continue
+        a, b = g.uniform(-1, 1, (257, width[k.args[0]])), g.uniform(-1, 1, (257, width[k.args[1]]))
+        batch = getattr(nb, f"{k.name}_batch")
+        fresh, inplace = batch(a, b), a.copy()
+        assert batch(inplace, b, out=inplace) is inplace
+        assert np.array_equal(inplace, fresh), k.name
+        checked += 1
+    assert checked, module.name
 
 # --- outside checks: numpy-quaternion and complex numbers ---------------------------------------
 

@@ -11,8 +11,8 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. The loops run from the last row to the first
-(faster for long kernels on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. Loops over long rows run from the last row
+to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
 
 Types (components in order):
     motor: s, e01, e02, e03, e12, e31, e23, e0123
@@ -266,7 +266,7 @@ def _compose_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_one_a(a, b, out):
-    """compose of one `a` with each row of the other argument, last row first."""
+    """compose of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -277,7 +277,7 @@ def _compose_one_a(a, b, out):
     a_e31 = a[5]
     a_e23 = a[6]
     a_e0123 = a[7]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_s = b[8*i]
         b_e01 = b[8*i + 1]
         b_e02 = b[8*i + 2]
@@ -318,7 +318,7 @@ def _compose_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_one_b(a, b, out):
-    """compose of one `b` with each row of the other argument, last row first."""
+    """compose of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_s = b[0]
@@ -329,7 +329,7 @@ def _compose_one_b(a, b, out):
     b_e31 = b[5]
     b_e23 = b[6]
     b_e0123 = b[7]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -432,10 +432,10 @@ def move_point(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _move_point_each(a, b, out):
-    """move_point of row i of every argument, for i < n, last row first."""
+    """move_point of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -484,7 +484,7 @@ def _move_point_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _move_point_one_a(a, b, out):
     """move_point of one `a` with each row of `b`: the matrix of `a` once (31 multiplies, 27 adds),
-    then 13 multiplies, 9 adds per row, last row first."""
+    then 13 multiplies, 9 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -518,7 +518,7 @@ def _move_point_one_a(a, b, out):
     m2_e032 = q_9 - q_0 - q_5 + q_3
     m2_e123 = 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123)
     m3_e123 = q_9 + q_0 + q_5 + q_3
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e021 = b[4*i]
         b_e013 = b[4*i + 1]
         b_e032 = b[4*i + 2]
@@ -535,14 +535,14 @@ def _move_point_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _move_point_one_b(a, b, out):
-    """move_point of one `b` with each row of the other argument, last row first."""
+    """move_point of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e021 = b[0]
     b_e013 = b[1]
     b_e032 = b[2]
     b_e123 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -779,7 +779,7 @@ def _move_line_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _move_line_one_a(a, b, out):
     """move_line of one `a` with each row of `b`: the matrix of `a` once (47 multiplies, 57 adds),
-    then 27 multiplies, 21 adds per row, last row first."""
+    then 27 multiplies, 21 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -843,7 +843,7 @@ def _move_line_one_a(a, b, out):
     m5_e12 = 2*(-q_24 + q_11)
     m5_e31 = 2*(q_22 + q_16)
     m5_e23 = q_25 - q_10 - q_17 + q_14
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e01 = b[6*i]
         b_e02 = b[6*i + 1]
         b_e03 = b[6*i + 2]
@@ -875,7 +875,7 @@ def _move_line_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _move_line_one_b(a, b, out):
-    """move_line of one `b` with each row of the other argument, last row first."""
+    """move_line of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e01 = b[0]
@@ -884,7 +884,7 @@ def _move_line_one_b(a, b, out):
     b_e12 = b[3]
     b_e31 = b[4]
     b_e23 = b[5]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -1033,10 +1033,10 @@ def move_plane(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _move_plane_each(a, b, out):
-    """move_plane of row i of every argument, for i < n, last row first."""
+    """move_plane of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -1085,7 +1085,7 @@ def _move_plane_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _move_plane_one_a(a, b, out):
     """move_plane of one `a` with each row of `b`: the matrix of `a` once (31 multiplies, 27 adds),
-    then 13 multiplies, 9 adds per row, last row first."""
+    then 13 multiplies, 9 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -1119,7 +1119,7 @@ def _move_plane_one_a(a, b, out):
     m3_e1 = 2*(q_8 + q_1)
     m3_e2 = 2*(-q_7 + q_2)
     m3_e3 = q_9 + q_0 - q_5 - q_3
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[4*i]
         b_e1 = b[4*i + 1]
         b_e2 = b[4*i + 2]
@@ -1136,14 +1136,14 @@ def _move_plane_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _move_plane_one_b(a, b, out):
-    """move_plane of one `b` with each row of the other argument, last row first."""
+    """move_plane of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
     b_e3 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -1352,10 +1352,10 @@ def join(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _join_each(a, b, out):
-    """join of row i of every argument, for i < n, last row first."""
+    """join of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e021 = a[4*i]
         a_e013 = a[4*i + 1]
         a_e032 = a[4*i + 2]
@@ -1380,14 +1380,14 @@ def _join_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _join_one_a(a, b, out):
-    """join of one `a` with each row of the other argument, last row first."""
+    """join of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e021 = a[0]
     a_e013 = a[1]
     a_e032 = a[2]
     a_e123 = a[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e021 = b[4*i]
         b_e013 = b[4*i + 1]
         b_e032 = b[4*i + 2]
@@ -1408,14 +1408,14 @@ def _join_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _join_one_b(a, b, out):
-    """join of one `b` with each row of the other argument, last row first."""
+    """join of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e021 = b[0]
     b_e013 = b[1]
     b_e032 = b[2]
     b_e123 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e021 = a[4*i]
         a_e013 = a[4*i + 1]
         a_e032 = a[4*i + 2]
@@ -1479,10 +1479,10 @@ def meet_planes(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _meet_planes_each(a, b, out):
-    """meet_planes of row i of every argument, for i < n, last row first."""
+    """meet_planes of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[4*i]
         a_e1 = a[4*i + 1]
         a_e2 = a[4*i + 2]
@@ -1507,14 +1507,14 @@ def _meet_planes_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _meet_planes_one_a(a, b, out):
-    """meet_planes of one `a` with each row of the other argument, last row first."""
+    """meet_planes of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e0 = a[0]
     a_e1 = a[1]
     a_e2 = a[2]
     a_e3 = a[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[4*i]
         b_e1 = b[4*i + 1]
         b_e2 = b[4*i + 2]
@@ -1535,14 +1535,14 @@ def _meet_planes_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _meet_planes_one_b(a, b, out):
-    """meet_planes of one `b` with each row of the other argument, last row first."""
+    """meet_planes of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
     b_e3 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[4*i]
         a_e1 = a[4*i + 1]
         a_e2 = a[4*i + 2]
@@ -1602,10 +1602,10 @@ def meet_line_plane(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _meet_line_plane_each(a, b, out):
-    """meet_line_plane of row i of every argument, for i < n, last row first."""
+    """meet_line_plane of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e01 = a[6*i]
         a_e02 = a[6*i + 1]
         a_e03 = a[6*i + 2]
@@ -1628,7 +1628,7 @@ def _meet_line_plane_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _meet_line_plane_one_a(a, b, out):
-    """meet_line_plane of one `a` with each row of the other argument, last row first."""
+    """meet_line_plane of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e01 = a[0]
@@ -1637,7 +1637,7 @@ def _meet_line_plane_one_a(a, b, out):
     a_e12 = a[3]
     a_e31 = a[4]
     a_e23 = a[5]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[4*i]
         b_e1 = b[4*i + 1]
         b_e2 = b[4*i + 2]
@@ -1654,14 +1654,14 @@ def _meet_line_plane_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _meet_line_plane_one_b(a, b, out):
-    """meet_line_plane of one `b` with each row of the other argument, last row first."""
+    """meet_line_plane of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
     b_e3 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e01 = a[6*i]
         a_e02 = a[6*i + 1]
         a_e03 = a[6*i + 2]
@@ -1733,10 +1733,10 @@ def motor_from_line(a):
 
 @njit(cache=True, error_model="numpy")
 def _motor_from_line_each(a, out):
-    """motor_from_line of row i of every argument, for i < n, last row first."""
+    """motor_from_line of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e01 = a[6*i]
         a_e02 = a[6*i + 1]
         a_e03 = a[6*i + 2]
@@ -1812,10 +1812,10 @@ def invert_motor(a):
 
 @njit(cache=True, error_model="numpy")
 def _invert_motor_each(a, out):
-    """invert_motor of row i of every argument, for i < n, last row first."""
+    """invert_motor of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -1886,10 +1886,10 @@ def reverse_motor(a):
 
 @njit(cache=True, error_model="numpy")
 def _reverse_motor_each(a, out):
-    """reverse_motor of row i of every argument, for i < n, last row first."""
+    """reverse_motor of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -1948,10 +1948,10 @@ def complement_point(a):
 
 @njit(cache=True, error_model="numpy")
 def _complement_point_each(a, out):
-    """complement_point of row i of every argument, for i < n, last row first."""
+    """complement_point of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e021 = a[4*i]
         a_e013 = a[4*i + 1]
         a_e032 = a[4*i + 2]

@@ -11,8 +11,8 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. The loops run from the last row to the first
-(faster for long kernels on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. Loops over long rows run from the last row
+to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
 
 Types (components in order):
     rotor: s, e12, e13, e23
@@ -188,10 +188,10 @@ def compose(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _compose_each(a, b, out):
-    """compose of row i of every argument, for i < n, last row first."""
+    """compose of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -212,14 +212,14 @@ def _compose_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_one_a(a, b, out):
-    """compose of one `a` with each row of the other argument, last row first."""
+    """compose of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
     a_e12 = a[1]
     a_e13 = a[2]
     a_e23 = a[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_s = b[4*i]
         b_e12 = b[4*i + 1]
         b_e13 = b[4*i + 2]
@@ -236,14 +236,14 @@ def _compose_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_one_b(a, b, out):
-    """compose of one `b` with each row of the other argument, last row first."""
+    """compose of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_s = b[0]
     b_e12 = b[1]
     b_e13 = b[2]
     b_e23 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -316,10 +316,10 @@ def rotate(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _rotate_each(a, b, out):
-    """rotate of row i of every argument, for i < n, last row first."""
+    """rotate of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -357,7 +357,7 @@ def _rotate_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _rotate_one_a(a, b, out):
     """rotate of one `a` with each row of `b`: the matrix of `a` once (16 multiplies, 15 adds),
-    then 9 multiplies, 6 adds per row, last row first."""
+    then 9 multiplies, 6 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -383,7 +383,7 @@ def _rotate_one_a(a, b, out):
     m2_e1 = 2*(-q_7 + q_2)
     m2_e2 = 2*(-q_8 - q_1)
     m2_e3 = q_9 + q_0 - q_3 - q_5
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e1 = b[3*i]
         b_e2 = b[3*i + 1]
         b_e3 = b[3*i + 2]
@@ -397,13 +397,13 @@ def _rotate_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _rotate_one_b(a, b, out):
-    """rotate of one `b` with each row of the other argument, last row first."""
+    """rotate of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e1 = b[0]
     b_e2 = b[1]
     b_e3 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -495,10 +495,10 @@ def rotation_matrix(a):
 
 @njit(cache=True, error_model="numpy")
 def _rotation_matrix_each(a, out):
-    """rotation_matrix of row i of every argument, for i < n, last row first."""
+    """rotation_matrix of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -568,10 +568,10 @@ def rotor_from_rate(a):
 
 @njit(cache=True, error_model="numpy")
 def _rotor_from_rate_each(a, out):
-    """rotor_from_rate of row i of every argument, for i < n, last row first."""
+    """rotor_from_rate of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e12 = a[3*i]
         a_e13 = a[3*i + 1]
         a_e23 = a[3*i + 2]
@@ -620,10 +620,10 @@ def reverse_rotor(a):
 
 @njit(cache=True, error_model="numpy")
 def _reverse_rotor_each(a, out):
-    """reverse_rotor of row i of every argument, for i < n, last row first."""
+    """reverse_rotor of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -664,10 +664,10 @@ def rotor_norm2(a):
 
 @njit(cache=True, error_model="numpy")
 def _rotor_norm2_each(a, out):
-    """rotor_norm2 of row i of every argument, for i < n, last row first."""
+    """rotor_norm2 of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -710,10 +710,10 @@ def invert_rotor(a):
 
 @njit(cache=True, error_model="numpy")
 def _invert_rotor_each(a, out):
-    """invert_rotor of row i of every argument, for i < n, last row first."""
+    """invert_rotor of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -761,10 +761,10 @@ def wedge(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _wedge_each(a, b, out):
-    """wedge of row i of every argument, for i < n, last row first."""
+    """wedge of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1 = a[3*i]
         a_e2 = a[3*i + 1]
         a_e3 = a[3*i + 2]
@@ -781,13 +781,13 @@ def _wedge_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _wedge_one_a(a, b, out):
-    """wedge of one `a` with each row of the other argument, last row first."""
+    """wedge of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e1 = a[0]
     a_e2 = a[1]
     a_e3 = a[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e1 = b[3*i]
         b_e2 = b[3*i + 1]
         b_e3 = b[3*i + 2]
@@ -801,13 +801,13 @@ def _wedge_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _wedge_one_b(a, b, out):
-    """wedge of one `b` with each row of the other argument, last row first."""
+    """wedge of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e1 = b[0]
     b_e2 = b[1]
     b_e3 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1 = a[3*i]
         a_e2 = a[3*i + 1]
         a_e3 = a[3*i + 2]
@@ -858,10 +858,10 @@ def rate_cross(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _rate_cross_each(a, b, out):
-    """rate_cross of row i of every argument, for i < n, last row first."""
+    """rate_cross of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1 = a[3*i]
         a_e2 = a[3*i + 1]
         a_e3 = a[3*i + 2]
@@ -878,13 +878,13 @@ def _rate_cross_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _rate_cross_one_a(a, b, out):
-    """rate_cross of one `a` with each row of the other argument, last row first."""
+    """rate_cross of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e1 = a[0]
     a_e2 = a[1]
     a_e3 = a[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e12 = b[3*i]
         b_e13 = b[3*i + 1]
         b_e23 = b[3*i + 2]
@@ -898,13 +898,13 @@ def _rate_cross_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _rate_cross_one_b(a, b, out):
-    """rate_cross of one `b` with each row of the other argument, last row first."""
+    """rate_cross of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e12 = b[0]
     b_e13 = b[1]
     b_e23 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1 = a[3*i]
         a_e2 = a[3*i + 1]
         a_e3 = a[3*i + 2]
@@ -955,10 +955,10 @@ def rate_bracket(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _rate_bracket_each(a, b, out):
-    """rate_bracket of row i of every argument, for i < n, last row first."""
+    """rate_bracket of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e12 = a[3*i]
         a_e13 = a[3*i + 1]
         a_e23 = a[3*i + 2]
@@ -975,13 +975,13 @@ def _rate_bracket_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _rate_bracket_one_a(a, b, out):
-    """rate_bracket of one `a` with each row of the other argument, last row first."""
+    """rate_bracket of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e12 = a[0]
     a_e13 = a[1]
     a_e23 = a[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e12 = b[3*i]
         b_e13 = b[3*i + 1]
         b_e23 = b[3*i + 2]
@@ -995,13 +995,13 @@ def _rate_bracket_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _rate_bracket_one_b(a, b, out):
-    """rate_bracket of one `b` with each row of the other argument, last row first."""
+    """rate_bracket of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e12 = b[0]
     b_e13 = b[1]
     b_e23 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e12 = a[3*i]
         a_e13 = a[3*i + 1]
         a_e23 = a[3*i + 2]
@@ -1051,10 +1051,10 @@ def rate_axis(a):
 
 @njit(cache=True, error_model="numpy")
 def _rate_axis_each(a, out):
-    """rate_axis of row i of every argument, for i < n, last row first."""
+    """rate_axis of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e12 = a[3*i]
         a_e13 = a[3*i + 1]
         a_e23 = a[3*i + 2]
@@ -1179,7 +1179,7 @@ def _full_product_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _full_product_one_a(a, b, out):
-    """full_product of one `a` with each row of the other argument, last row first."""
+    """full_product of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -1190,7 +1190,7 @@ def _full_product_one_a(a, b, out):
     a_e13 = a[5]
     a_e23 = a[6]
     a_e123 = a[7]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_s = b[8*i]
         b_e1 = b[8*i + 1]
         b_e2 = b[8*i + 2]
@@ -1243,7 +1243,7 @@ def _full_product_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _full_product_one_b(a, b, out):
-    """full_product of one `b` with each row of the other argument, last row first."""
+    """full_product of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_s = b[0]
@@ -1254,7 +1254,7 @@ def _full_product_one_b(a, b, out):
     b_e13 = b[5]
     b_e23 = b[6]
     b_e123 = b[7]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e1 = a[8*i + 1]
         a_e2 = a[8*i + 2]

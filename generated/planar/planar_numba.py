@@ -11,8 +11,8 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. The loops run from the last row to the first
-(faster for long kernels on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. Loops over long rows run from the last row
+to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
 
 Types (components in order):
     motor: s, e01, e20, e12
@@ -175,10 +175,10 @@ def compose(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _compose_each(a, b, out):
-    """compose of row i of every argument, for i < n, last row first."""
+    """compose of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e20 = a[4*i + 2]
@@ -199,14 +199,14 @@ def _compose_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_one_a(a, b, out):
-    """compose of one `a` with each row of the other argument, last row first."""
+    """compose of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
     a_e01 = a[1]
     a_e20 = a[2]
     a_e12 = a[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_s = b[4*i]
         b_e01 = b[4*i + 1]
         b_e20 = b[4*i + 2]
@@ -223,14 +223,14 @@ def _compose_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_one_b(a, b, out):
-    """compose of one `b` with each row of the other argument, last row first."""
+    """compose of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_s = b[0]
     b_e01 = b[1]
     b_e20 = b[2]
     b_e12 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e20 = a[4*i + 2]
@@ -294,10 +294,10 @@ def move_point(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _move_point_each(a, b, out):
-    """move_point of row i of every argument, for i < n, last row first."""
+    """move_point of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e20 = a[4*i + 2]
@@ -326,7 +326,7 @@ def _move_point_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _move_point_one_a(a, b, out):
     """move_point of one `a` with each row of `b`: the matrix of `a` once (11 multiplies, 5 adds),
-    then 7 multiplies, 4 adds per row, last row first."""
+    then 7 multiplies, 4 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -343,7 +343,7 @@ def _move_point_one_a(a, b, out):
     m1_e01 = q_2 - q_0
     m1_e12 = 2*(a_s*a_e20 + a_e01*a_e12)
     m2_e12 = q_2 + q_0
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e20 = b[3*i]
         b_e01 = b[3*i + 1]
         b_e12 = b[3*i + 2]
@@ -357,13 +357,13 @@ def _move_point_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _move_point_one_b(a, b, out):
-    """move_point of one `b` with each row of the other argument, last row first."""
+    """move_point of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e20 = b[0]
     b_e01 = b[1]
     b_e12 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e20 = a[4*i + 2]
@@ -435,10 +435,10 @@ def move_line(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _move_line_each(a, b, out):
-    """move_line of row i of every argument, for i < n, last row first."""
+    """move_line of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e20 = a[4*i + 2]
@@ -467,7 +467,7 @@ def _move_line_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _move_line_one_a(a, b, out):
     """move_line of one `a` with each row of `b`: the matrix of `a` once (11 multiplies, 5 adds),
-    then 7 multiplies, 4 adds per row, last row first."""
+    then 7 multiplies, 4 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -484,7 +484,7 @@ def _move_line_one_a(a, b, out):
     m1_e2 = 2*q_1
     m2_e1 = -2*q_1
     m2_e2 = q_2 - q_0
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[3*i]
         b_e1 = b[3*i + 1]
         b_e2 = b[3*i + 2]
@@ -498,13 +498,13 @@ def _move_line_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _move_line_one_b(a, b, out):
-    """move_line of one `b` with each row of the other argument, last row first."""
+    """move_line of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e20 = a[4*i + 2]
@@ -566,10 +566,10 @@ def join(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _join_each(a, b, out):
-    """join of row i of every argument, for i < n, last row first."""
+    """join of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e20 = a[3*i]
         a_e01 = a[3*i + 1]
         a_e12 = a[3*i + 2]
@@ -586,13 +586,13 @@ def _join_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _join_one_a(a, b, out):
-    """join of one `a` with each row of the other argument, last row first."""
+    """join of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e20 = a[0]
     a_e01 = a[1]
     a_e12 = a[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e20 = b[3*i]
         b_e01 = b[3*i + 1]
         b_e12 = b[3*i + 2]
@@ -606,13 +606,13 @@ def _join_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _join_one_b(a, b, out):
-    """join of one `b` with each row of the other argument, last row first."""
+    """join of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e20 = b[0]
     b_e01 = b[1]
     b_e12 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e20 = a[3*i]
         a_e01 = a[3*i + 1]
         a_e12 = a[3*i + 2]
@@ -663,10 +663,10 @@ def meet(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _meet_each(a, b, out):
-    """meet of row i of every argument, for i < n, last row first."""
+    """meet of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[3*i]
         a_e1 = a[3*i + 1]
         a_e2 = a[3*i + 2]
@@ -683,13 +683,13 @@ def _meet_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _meet_one_a(a, b, out):
-    """meet of one `a` with each row of the other argument, last row first."""
+    """meet of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e0 = a[0]
     a_e1 = a[1]
     a_e2 = a[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[3*i]
         b_e1 = b[3*i + 1]
         b_e2 = b[3*i + 2]
@@ -703,13 +703,13 @@ def _meet_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _meet_one_b(a, b, out):
-    """meet of one `b` with each row of the other argument, last row first."""
+    """meet of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[3*i]
         a_e1 = a[3*i + 1]
         a_e2 = a[3*i + 2]
@@ -764,10 +764,10 @@ def motor_from_point(a):
 
 @njit(cache=True, error_model="numpy")
 def _motor_from_point_each(a, out):
-    """motor_from_point of row i of every argument, for i < n, last row first."""
+    """motor_from_point of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e20 = a[3*i]
         a_e01 = a[3*i + 1]
         a_e12 = a[3*i + 2]
@@ -818,10 +818,10 @@ def invert_motor(a):
 
 @njit(cache=True, error_model="numpy")
 def _invert_motor_each(a, out):
-    """invert_motor of row i of every argument, for i < n, last row first."""
+    """invert_motor of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e20 = a[4*i + 2]
@@ -869,10 +869,10 @@ def project_line(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _project_line_each(a, b, out):
-    """project_line of row i of every argument, for i < n, last row first."""
+    """project_line of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[3*i]
         a_e1 = a[3*i + 1]
         a_e2 = a[3*i + 2]
@@ -889,13 +889,13 @@ def _project_line_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _project_line_one_a(a, b, out):
-    """project_line of one `a` with each row of the other argument, last row first."""
+    """project_line of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e0 = a[0]
     a_e1 = a[1]
     a_e2 = a[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e20 = b[3*i]
         b_e01 = b[3*i + 1]
         b_e12 = b[3*i + 2]
@@ -909,13 +909,13 @@ def _project_line_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _project_line_one_b(a, b, out):
-    """project_line of one `b` with each row of the other argument, last row first."""
+    """project_line of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e20 = b[0]
     b_e01 = b[1]
     b_e12 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[3*i]
         a_e1 = a[3*i + 1]
         a_e2 = a[3*i + 2]
@@ -964,10 +964,10 @@ def velocity_bracket(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _velocity_bracket_each(a, b, out):
-    """velocity_bracket of row i of every argument, for i < n, last row first."""
+    """velocity_bracket of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e20 = a[3*i]
         a_e01 = a[3*i + 1]
         a_e12 = a[3*i + 2]
@@ -982,13 +982,13 @@ def _velocity_bracket_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _velocity_bracket_one_a(a, b, out):
-    """velocity_bracket of one `a` with each row of the other argument, last row first."""
+    """velocity_bracket of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e20 = a[0]
     a_e01 = a[1]
     a_e12 = a[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e20 = b[3*i]
         b_e01 = b[3*i + 1]
         b_e12 = b[3*i + 2]
@@ -1000,13 +1000,13 @@ def _velocity_bracket_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _velocity_bracket_one_b(a, b, out):
-    """velocity_bracket of one `b` with each row of the other argument, last row first."""
+    """velocity_bracket of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e20 = b[0]
     b_e01 = b[1]
     b_e12 = b[2]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e20 = a[3*i]
         a_e01 = a[3*i + 1]
         a_e12 = a[3*i + 2]

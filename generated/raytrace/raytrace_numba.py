@@ -11,8 +11,8 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. The loops run from the last row to the first
-(faster for long kernels on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. Loops over long rows run from the last row
+to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
 
 Types (components in order):
     euclid: e1, e2, e3
@@ -199,10 +199,10 @@ def up(a):
 
 @njit(cache=True, error_model="numpy")
 def _up_each(a, out):
-    """up of row i of every argument, for i < n, last row first."""
+    """up of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1 = a[3*i]
         a_e2 = a[3*i + 1]
         a_e3 = a[3*i + 2]
@@ -245,10 +245,10 @@ def inner(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _inner_each(a, b, out):
-    """inner of row i of every argument, for i < n, last row first."""
+    """inner of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1 = a[5*i]
         a_e2 = a[5*i + 1]
         a_e3 = a[5*i + 2]
@@ -265,7 +265,7 @@ def _inner_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _inner_one_a(a, b, out):
-    """inner of one `a` with each row of the other argument, last row first."""
+    """inner of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e1 = a[0]
@@ -273,7 +273,7 @@ def _inner_one_a(a, b, out):
     a_e3 = a[2]
     a_eo = a[3]
     a_ei = a[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e1 = b[5*i]
         b_e2 = b[5*i + 1]
         b_e3 = b[5*i + 2]
@@ -285,7 +285,7 @@ def _inner_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _inner_one_b(a, b, out):
-    """inner of one `b` with each row of the other argument, last row first."""
+    """inner of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e1 = b[0]
@@ -293,7 +293,7 @@ def _inner_one_b(a, b, out):
     b_e3 = b[2]
     b_eo = b[3]
     b_ei = b[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1 = a[5*i]
         a_e2 = a[5*i + 1]
         a_e3 = a[5*i + 2]
@@ -394,7 +394,7 @@ def _pair_of_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _pair_of_one_a(a, b, out):
-    """pair_of of one `a` with each row of the other argument, last row first."""
+    """pair_of of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e1 = a[0]
@@ -402,7 +402,7 @@ def _pair_of_one_a(a, b, out):
     a_e3 = a[2]
     a_eo = a[3]
     a_ei = a[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e1 = b[5*i]
         b_e2 = b[5*i + 1]
         b_e3 = b[5*i + 2]
@@ -432,7 +432,7 @@ def _pair_of_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _pair_of_one_b(a, b, out):
-    """pair_of of one `b` with each row of the other argument, last row first."""
+    """pair_of of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e1 = b[0]
@@ -440,7 +440,7 @@ def _pair_of_one_b(a, b, out):
     b_e3 = b[2]
     b_eo = b[3]
     b_ei = b[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1 = a[5*i]
         a_e2 = a[5*i + 1]
         a_e3 = a[5*i + 2]
@@ -564,7 +564,7 @@ def _circle_of_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _circle_of_one_a(a, b, out):
-    """circle_of of one `a` with each row of the other argument, last row first."""
+    """circle_of of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e12 = a[0]
@@ -577,7 +577,7 @@ def _circle_of_one_a(a, b, out):
     a_e3o = a[7]
     a_e3i = a[8]
     a_eoi = a[9]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e1 = b[5*i]
         b_e2 = b[5*i + 1]
         b_e3 = b[5*i + 2]
@@ -724,7 +724,7 @@ def _sphere_of_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _sphere_of_one_a(a, b, out):
-    """sphere_of of one `a` with each row of the other argument, last row first."""
+    """sphere_of of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e123 = a[0]
@@ -737,7 +737,7 @@ def _sphere_of_one_a(a, b, out):
     a_e23i = a[7]
     a_e2oi = a[8]
     a_e3oi = a[9]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e1 = b[5*i]
         b_e2 = b[5*i + 1]
         b_e3 = b[5*i + 2]
@@ -757,7 +757,7 @@ def _sphere_of_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _sphere_of_one_b(a, b, out):
-    """sphere_of of one `b` with each row of the other argument, last row first."""
+    """sphere_of of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e1 = b[0]
@@ -765,7 +765,7 @@ def _sphere_of_one_b(a, b, out):
     b_e3 = b[2]
     b_eo = b[3]
     b_ei = b[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e123 = a[10*i]
         a_e12o = a[10*i + 1]
         a_e12i = a[10*i + 2]
@@ -823,10 +823,10 @@ def on_sphere(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _on_sphere_each(a, b, out):
-    """on_sphere of row i of every argument, for i < n, last row first."""
+    """on_sphere of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e123o = a[5*i]
         a_e123i = a[5*i + 1]
         a_e12oi = a[5*i + 2]
@@ -843,7 +843,7 @@ def _on_sphere_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _on_sphere_one_a(a, b, out):
-    """on_sphere of one `a` with each row of the other argument, last row first."""
+    """on_sphere of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e123o = a[0]
@@ -851,7 +851,7 @@ def _on_sphere_one_a(a, b, out):
     a_e12oi = a[2]
     a_e13oi = a[3]
     a_e23oi = a[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e1 = b[5*i]
         b_e2 = b[5*i + 1]
         b_e3 = b[5*i + 2]
@@ -863,7 +863,7 @@ def _on_sphere_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _on_sphere_one_b(a, b, out):
-    """on_sphere of one `b` with each row of the other argument, last row first."""
+    """on_sphere of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e1 = b[0]
@@ -871,7 +871,7 @@ def _on_sphere_one_b(a, b, out):
     b_e3 = b[2]
     b_eo = b[3]
     b_ei = b[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e123o = a[5*i]
         a_e123i = a[5*i + 1]
         a_e12oi = a[5*i + 2]
@@ -923,10 +923,10 @@ def dual_sphere(a):
 
 @njit(cache=True, error_model="numpy")
 def _dual_sphere_each(a, out):
-    """dual_sphere of row i of every argument, for i < n, last row first."""
+    """dual_sphere of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e123o = a[5*i]
         a_e123i = a[5*i + 1]
         a_e12oi = a[5*i + 2]
@@ -979,10 +979,10 @@ def translator_from(a):
 
 @njit(cache=True, error_model="numpy")
 def _translator_from_each(a, out):
-    """translator_from of row i of every argument, for i < n, last row first."""
+    """translator_from of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1i = a[3*i]
         a_e2i = a[3*i + 1]
         a_e3i = a[3*i + 2]
@@ -1034,10 +1034,10 @@ def rotor_from(a):
 
 @njit(cache=True, error_model="numpy")
 def _rotor_from_each(a, out):
-    """rotor_from of row i of every argument, for i < n, last row first."""
+    """rotor_from of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e12 = a[3*i]
         a_e13 = a[3*i + 1]
         a_e23 = a[3*i + 2]
@@ -1094,10 +1094,10 @@ def translate(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _translate_each(a, b, out):
-    """translate of row i of every argument, for i < n, last row first."""
+    """translate of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e1i = a[4*i + 1]
         a_e2i = a[4*i + 2]
@@ -1129,7 +1129,7 @@ def _translate_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _translate_one_a(a, b, out):
     """translate of one `a` with each row of `b`: the matrix of `a` once (14 multiplies, 2 adds),
-    then 12 multiplies, 7 adds per row, last row first."""
+    then 12 multiplies, 7 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -1152,7 +1152,7 @@ def _translate_one_a(a, b, out):
     m4_e3 = -2*q_2
     m4_eo = 2*(a_e1i*a_e1i + a_e2i*a_e2i + a_e3i*a_e3i)
     m4_ei = q_3
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e1 = b[5*i]
         b_e2 = b[5*i + 1]
         b_e3 = b[5*i + 2]
@@ -1172,7 +1172,7 @@ def _translate_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _translate_one_b(a, b, out):
-    """translate of one `b` with each row of the other argument, last row first."""
+    """translate of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e1 = b[0]
@@ -1180,7 +1180,7 @@ def _translate_one_b(a, b, out):
     b_e3 = b[2]
     b_eo = b[3]
     b_ei = b[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e1i = a[4*i + 1]
         a_e2i = a[4*i + 2]
@@ -1268,10 +1268,10 @@ def rotate(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _rotate_each(a, b, out):
-    """rotate of row i of every argument, for i < n, last row first."""
+    """rotate of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -1317,7 +1317,7 @@ def _rotate_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _rotate_one_a(a, b, out):
     """rotate of one `a` with each row of `b`: the matrix of `a` once (16 multiplies, 21 adds),
-    then 11 multiplies, 6 adds per row, last row first."""
+    then 11 multiplies, 6 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -1345,7 +1345,7 @@ def _rotate_one_a(a, b, out):
     m2_e3 = q_9 + q_0 - q_3 - q_5
     m3_eo = q_9 + q_0 + q_3 + q_5
     m4_ei = q_9 + q_0 + q_3 + q_5
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e1 = b[5*i]
         b_e2 = b[5*i + 1]
         b_e3 = b[5*i + 2]
@@ -1365,7 +1365,7 @@ def _rotate_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _rotate_one_b(a, b, out):
-    """rotate of one `b` with each row of the other argument, last row first."""
+    """rotate of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e1 = b[0]
@@ -1373,7 +1373,7 @@ def _rotate_one_b(a, b, out):
     b_e3 = b[2]
     b_eo = b[3]
     b_ei = b[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e12 = a[4*i + 1]
         a_e13 = a[4*i + 2]
@@ -1502,7 +1502,7 @@ def _ray_hits_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _ray_hits_one_a(a, b, out):
-    """ray_hits of one `a` with each row of the other argument, last row first."""
+    """ray_hits of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e1 = a[0]
@@ -1510,7 +1510,7 @@ def _ray_hits_one_a(a, b, out):
     a_e3 = a[2]
     a_eo = a[3]
     a_ei = a[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e123o = b[5*i]
         b_e123i = b[5*i + 1]
         b_e12oi = b[5*i + 2]
@@ -1540,7 +1540,7 @@ def _ray_hits_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _ray_hits_one_b(a, b, out):
-    """ray_hits of one `b` with each row of the other argument, last row first."""
+    """ray_hits of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e123o = b[0]
@@ -1548,7 +1548,7 @@ def _ray_hits_one_b(a, b, out):
     b_e12oi = b[2]
     b_e13oi = b[3]
     b_e23oi = b[4]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e1 = a[5*i]
         a_e2 = a[5*i + 1]
         a_e3 = a[5*i + 2]

@@ -11,8 +11,8 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. The loops run from the last row to the first
-(faster for long kernels on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. Loops over long rows run from the last row
+to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
 
 Types (components in order):
     event: e0, e1, e2, e3
@@ -204,10 +204,10 @@ def boost_from_rapidity(a):
 
 @njit(cache=True, error_model="numpy")
 def _boost_from_rapidity_each(a, out):
-    """boost_from_rapidity of row i of every argument, for i < n, last row first."""
+    """boost_from_rapidity of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e01 = a[3*i]
         a_e02 = a[3*i + 1]
         a_e03 = a[3*i + 2]
@@ -283,10 +283,10 @@ def boost_event(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _boost_event_each(a, b, out):
-    """boost_event of row i of every argument, for i < n, last row first."""
+    """boost_event of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e02 = a[4*i + 2]
@@ -334,7 +334,7 @@ def _boost_event_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _boost_event_one_a(a, b, out):
     """boost_event of one `a` with each row of `b`: the matrix of `a` once (22 multiplies, 12 adds),
-    then 16 multiplies, 12 adds per row, last row first."""
+    then 16 multiplies, 12 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -367,7 +367,7 @@ def _boost_event_one_a(a, b, out):
     m3_e1 = 2*q_2
     m3_e2 = 2*q_4
     m3_e3 = q_9 - q_0 - q_3 + q_5
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[4*i]
         b_e1 = b[4*i + 1]
         b_e2 = b[4*i + 2]
@@ -384,14 +384,14 @@ def _boost_event_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _boost_event_one_b(a, b, out):
-    """boost_event of one `b` with each row of the other argument, last row first."""
+    """boost_event of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
     b_e3 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e02 = a[4*i + 2]
@@ -521,10 +521,10 @@ def transform_event(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _transform_event_each(a, b, out):
-    """transform_event of row i of every argument, for i < n, last row first."""
+    """transform_event of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -598,7 +598,7 @@ def _transform_event_each(a, b, out):
 @njit(cache=True, error_model="numpy")
 def _transform_event_one_a(a, b, out):
     """transform_event of one `a` with each row of `b`: the matrix of `a` once (44 multiplies, 64 adds),
-    then 16 multiplies, 12 adds per row, last row first."""
+    then 16 multiplies, 12 adds per row."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -657,7 +657,7 @@ def _transform_event_one_a(a, b, out):
     m3_e1 = 2*(q_29 + q_3 + q_7 + q_19)
     m3_e2 = 2*(q_30 - q_1 + q_9 - q_18)
     m3_e3 = q_31 - q_0 - q_8 + q_13 + q_17 - q_21 - q_24 + q_6
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[4*i]
         b_e1 = b[4*i + 1]
         b_e2 = b[4*i + 2]
@@ -674,14 +674,14 @@ def _transform_event_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _transform_event_one_b(a, b, out):
-    """transform_event of one `b` with each row of the other argument, last row first."""
+    """transform_event of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
     b_e3 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -797,10 +797,10 @@ def compose_boosts(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _compose_boosts_each(a, b, out):
-    """compose_boosts of row i of every argument, for i < n, last row first."""
+    """compose_boosts of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e02 = a[4*i + 2]
@@ -829,14 +829,14 @@ def _compose_boosts_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_boosts_one_a(a, b, out):
-    """compose_boosts of one `a` with each row of the other argument, last row first."""
+    """compose_boosts of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
     a_e01 = a[1]
     a_e02 = a[2]
     a_e03 = a[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_s = b[4*i]
         b_e01 = b[4*i + 1]
         b_e02 = b[4*i + 2]
@@ -861,14 +861,14 @@ def _compose_boosts_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_boosts_one_b(a, b, out):
-    """compose_boosts of one `b` with each row of the other argument, last row first."""
+    """compose_boosts of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_s = b[0]
     b_e01 = b[1]
     b_e02 = b[2]
     b_e03 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e02 = a[4*i + 2]
@@ -1012,7 +1012,7 @@ def _compose_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_one_a(a, b, out):
-    """compose of one `a` with each row of the other argument, last row first."""
+    """compose of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -1023,7 +1023,7 @@ def _compose_one_a(a, b, out):
     a_e13 = a[5]
     a_e23 = a[6]
     a_e0123 = a[7]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_s = b[8*i]
         b_e01 = b[8*i + 1]
         b_e02 = b[8*i + 2]
@@ -1076,7 +1076,7 @@ def _compose_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _compose_one_b(a, b, out):
-    """compose of one `b` with each row of the other argument, last row first."""
+    """compose of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_s = b[0]
@@ -1087,7 +1087,7 @@ def _compose_one_b(a, b, out):
     b_e13 = b[5]
     b_e23 = b[6]
     b_e0123 = b[7]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -1180,10 +1180,10 @@ def invert_boost(a):
 
 @njit(cache=True, error_model="numpy")
 def _invert_boost_each(a, out):
-    """invert_boost of row i of every argument, for i < n, last row first."""
+    """invert_boost of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[4*i]
         a_e01 = a[4*i + 1]
         a_e02 = a[4*i + 2]
@@ -1227,10 +1227,10 @@ def interval(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _interval_each(a, b, out):
-    """interval of row i of every argument, for i < n, last row first."""
+    """interval of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[4*i]
         a_e1 = a[4*i + 1]
         a_e2 = a[4*i + 2]
@@ -1245,14 +1245,14 @@ def _interval_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _interval_one_a(a, b, out):
-    """interval of one `a` with each row of the other argument, last row first."""
+    """interval of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e0 = a[0]
     a_e1 = a[1]
     a_e2 = a[2]
     a_e3 = a[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[4*i]
         b_e1 = b[4*i + 1]
         b_e2 = b[4*i + 2]
@@ -1263,14 +1263,14 @@ def _interval_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _interval_one_b(a, b, out):
-    """interval of one `b` with each row of the other argument, last row first."""
+    """interval of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
     b_e3 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[4*i]
         a_e1 = a[4*i + 1]
         a_e2 = a[4*i + 2]
@@ -1324,10 +1324,10 @@ def track_plane(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _track_plane_each(a, b, out):
-    """track_plane of row i of every argument, for i < n, last row first."""
+    """track_plane of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[4*i]
         a_e1 = a[4*i + 1]
         a_e2 = a[4*i + 2]
@@ -1352,14 +1352,14 @@ def _track_plane_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _track_plane_one_a(a, b, out):
-    """track_plane of one `a` with each row of the other argument, last row first."""
+    """track_plane of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e0 = a[0]
     a_e1 = a[1]
     a_e2 = a[2]
     a_e3 = a[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[4*i]
         b_e1 = b[4*i + 1]
         b_e2 = b[4*i + 2]
@@ -1380,14 +1380,14 @@ def _track_plane_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _track_plane_one_b(a, b, out):
-    """track_plane of one `b` with each row of the other argument, last row first."""
+    """track_plane of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
     b_e3 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[4*i]
         a_e1 = a[4*i + 1]
         a_e2 = a[4*i + 2]
@@ -1450,10 +1450,10 @@ def field_dual(a):
 
 @njit(cache=True, error_model="numpy")
 def _field_dual_each(a, out):
-    """field_dual of row i of every argument, for i < n, last row first."""
+    """field_dual of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e01 = a[6*i]
         a_e02 = a[6*i + 1]
         a_e03 = a[6*i + 2]
@@ -1507,10 +1507,10 @@ def lorentz_force(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _lorentz_force_each(a, b, out):
-    """lorentz_force of row i of every argument, for i < n, last row first."""
+    """lorentz_force of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e01 = a[6*i]
         a_e02 = a[6*i + 1]
         a_e03 = a[6*i + 2]
@@ -1533,7 +1533,7 @@ def _lorentz_force_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _lorentz_force_one_a(a, b, out):
-    """lorentz_force of one `a` with each row of the other argument, last row first."""
+    """lorentz_force of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e01 = a[0]
@@ -1542,7 +1542,7 @@ def _lorentz_force_one_a(a, b, out):
     a_e12 = a[3]
     a_e13 = a[4]
     a_e23 = a[5]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[4*i]
         b_e1 = b[4*i + 1]
         b_e2 = b[4*i + 2]
@@ -1559,14 +1559,14 @@ def _lorentz_force_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _lorentz_force_one_b(a, b, out):
-    """lorentz_force of one `b` with each row of the other argument, last row first."""
+    """lorentz_force of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
     b_e3 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e01 = a[6*i]
         a_e02 = a[6*i + 1]
         a_e03 = a[6*i + 2]
@@ -1624,10 +1624,10 @@ def fat_dot_event(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _fat_dot_event_each(a, b, out):
-    """fat_dot_event of row i of every argument, for i < n, last row first."""
+    """fat_dot_event of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[4*i]
         a_e1 = a[4*i + 1]
         a_e2 = a[4*i + 2]
@@ -1650,14 +1650,14 @@ def _fat_dot_event_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _fat_dot_event_one_a(a, b, out):
-    """fat_dot_event of one `a` with each row of the other argument, last row first."""
+    """fat_dot_event of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e0 = a[0]
     a_e1 = a[1]
     a_e2 = a[2]
     a_e3 = a[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e01 = b[6*i]
         b_e02 = b[6*i + 1]
         b_e03 = b[6*i + 2]
@@ -1676,7 +1676,7 @@ def _fat_dot_event_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _fat_dot_event_one_b(a, b, out):
-    """fat_dot_event of one `b` with each row of the other argument, last row first."""
+    """fat_dot_event of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e01 = b[0]
@@ -1685,7 +1685,7 @@ def _fat_dot_event_one_b(a, b, out):
     b_e12 = b[3]
     b_e13 = b[4]
     b_e23 = b[5]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[4*i]
         a_e1 = a[4*i + 1]
         a_e2 = a[4*i + 2]
@@ -1741,10 +1741,10 @@ def right_contract(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _right_contract_each(a, b, out):
-    """right_contract of row i of every argument, for i < n, last row first."""
+    """right_contract of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e01 = a[6*i]
         a_e02 = a[6*i + 1]
         a_e03 = a[6*i + 2]
@@ -1767,7 +1767,7 @@ def _right_contract_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _right_contract_one_a(a, b, out):
-    """right_contract of one `a` with each row of the other argument, last row first."""
+    """right_contract of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e01 = a[0]
@@ -1776,7 +1776,7 @@ def _right_contract_one_a(a, b, out):
     a_e12 = a[3]
     a_e13 = a[4]
     a_e23 = a[5]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e0 = b[4*i]
         b_e1 = b[4*i + 1]
         b_e2 = b[4*i + 2]
@@ -1793,14 +1793,14 @@ def _right_contract_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _right_contract_one_b(a, b, out):
-    """right_contract of one `b` with each row of the other argument, last row first."""
+    """right_contract of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e0 = b[0]
     b_e1 = b[1]
     b_e2 = b[2]
     b_e3 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e01 = a[6*i]
         a_e02 = a[6*i + 1]
         a_e03 = a[6*i + 2]
@@ -1865,10 +1865,10 @@ def involute_lorentz(a):
 
 @njit(cache=True, error_model="numpy")
 def _involute_lorentz_each(a, out):
-    """involute_lorentz of row i of every argument, for i < n, last row first."""
+    """involute_lorentz of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -1935,10 +1935,10 @@ def conjugate_lorentz(a):
 
 @njit(cache=True, error_model="numpy")
 def _conjugate_lorentz_each(a, out):
-    """conjugate_lorentz of row i of every argument, for i < n, last row first."""
+    """conjugate_lorentz of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -2042,7 +2042,7 @@ def _difference_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _difference_one_a(a, b, out):
-    """difference of one `a` with each row of the other argument, last row first."""
+    """difference of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_s = a[0]
@@ -2053,7 +2053,7 @@ def _difference_one_a(a, b, out):
     a_e13 = a[5]
     a_e23 = a[6]
     a_e0123 = a[7]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_s = b[4*i]
         b_e01 = b[4*i + 1]
         b_e02 = b[4*i + 2]
@@ -2078,14 +2078,14 @@ def _difference_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _difference_one_b(a, b, out):
-    """difference of one `b` with each row of the other argument, last row first."""
+    """difference of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_s = b[0]
     b_e01 = b[1]
     b_e02 = b[2]
     b_e03 = b[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_s = a[8*i]
         a_e01 = a[8*i + 1]
         a_e02 = a[8*i + 2]
@@ -2203,14 +2203,14 @@ def _event_plus_field_each(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _event_plus_field_one_a(a, b, out):
-    """event_plus_field of one `a` with each row of the other argument, last row first."""
+    """event_plus_field of one `a` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     a_e0 = a[0]
     a_e1 = a[1]
     a_e2 = a[2]
     a_e3 = a[3]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         b_e01 = b[6*i]
         b_e02 = b[6*i + 1]
         b_e03 = b[6*i + 2]
@@ -2241,7 +2241,7 @@ def _event_plus_field_one_a(a, b, out):
 
 @njit(cache=True, error_model="numpy")
 def _event_plus_field_one_b(a, b, out):
-    """event_plus_field of one `b` with each row of the other argument, last row first."""
+    """event_plus_field of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e01 = b[0]
@@ -2250,7 +2250,7 @@ def _event_plus_field_one_b(a, b, out):
     b_e12 = b[3]
     b_e13 = b[4]
     b_e23 = b[5]
-    for i in range(n - 1, -1, -1):
+    for i in range(n):
         a_e0 = a[4*i]
         a_e1 = a[4*i + 1]
         a_e2 = a[4*i + 2]
