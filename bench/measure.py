@@ -6,6 +6,11 @@ emitted C kernels (so the ctypes call overhead, about a microsecond, is paid onc
 and not once per kernel call).  `number` is calibrated so that one repetition lasts at least
 `min_time` seconds, then `reps` repetitions are taken with `time.perf_counter`.  The garbage
 collector is off while timing, as in `timeit`.
+
+`interleaved` times several callables that are to be compared (one case's implementations) in
+rounds, one repetition of each per round, so that a slow spell of the machine (a neighbour on a
+shared VM, a frequency change) lands on all of them alike instead of on whichever was timed
+then; their ratios then flip less between runs.
 """
 from __future__ import annotations
 
@@ -66,6 +71,18 @@ def measure(run, reps: int, min_time: float) -> Stats:
     number = calibrate(run, min_time)
     times = [once(run, number) / number for _ in range(reps)]
     return Stats(statistics.median(times), min(times), max(times), reps)
+
+
+def interleaved(runs: dict, reps: dict, min_time: float) -> dict:
+    """{name: Stats} for `runs` ({name: run}) timed in rounds: round r takes one repetition of
+    each run that asks for more than r (`reps[name]`), in the order given."""
+    numbers = {name: calibrate(run, min_time) for name, run in runs.items()}
+    times = {name: [] for name in runs}
+    for r in range(max(reps.values(), default=0)):
+        for name, run in runs.items():
+            if r < reps[name]:
+                times[name].append(once(run, numbers[name]) / numbers[name])
+    return {name: Stats(statistics.median(t), min(t), max(t), len(t)) for name, t in times.items()}
 
 
 def statement(stmt: str, namespace: dict):

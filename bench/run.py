@@ -100,7 +100,8 @@ def markdown(s: Settings, found: dict, targets: list, seconds: float) -> str:
         "# Benchmark results\n\nWritten by `bench/run.py`"
         + (" **--quick (a smoke run, not the figures of record)**" if s.quick else "")
         + f" in {seconds:.0f} s; regenerate, do not edit.  Medians of {s.reps} repetitions "
-        "(einsum at the largest N: 3), [min–max] beside them; ratios are of medians.",
+        "(einsum at the largest N: 3), [min–max] beside them; ratios are of medians.  The "
+        "implementations of a case are timed in rounds, one repetition of each per round.",
         "## Environment\n\n" + report.table(("", ""), facts),
         "## Targets (issue 8, item 2)\n\n" + report.goals_table(targets) + "\n\n" + goals.READING,
         "## Kernel throughput (ns per element, float64)\n\n"

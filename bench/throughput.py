@@ -1,9 +1,10 @@
 """Time the throughput cases at each N, and single-element calls from Python.
 
 `setup` loads what the example builds emitted (C library, numba module, dense tables) for the
-specs the cases use; `kernels` times every implementation of every case at every N and returns
-nanoseconds per element; `singles` times one call of the rotor product from Python, in
-microseconds, beside numpy-quaternion's single multiply.
+specs the cases use; `kernels` times every implementation of every case at every N, in rounds of
+one repetition of each (`measure.interleaved`), and returns nanoseconds per element; `singles`
+times one call of the rotor product from Python, in microseconds, beside numpy-quaternion's
+single multiply.
 """
 from __future__ import annotations
 
@@ -15,7 +16,7 @@ import numpy as np
 import loaders
 from cases import CASES, IMPLEMENTATIONS, SPECS, Context, agreement, make_data
 from dense import Dense
-from measure import measure, statement
+from measure import interleaved, measure, statement
 
 SLOW = {"einsum"}       # compute bound: fewer repetitions at the largest N (see `repetitions`)
 
@@ -50,12 +51,12 @@ def kernels(ctx: Context, sizes, reps: int, min_time: float) -> dict:
 
 
 def time_case(ctx: Context, case, n: int, reps: int, min_time: float, sizes) -> dict:
-    d, row = make_data(ctx, case, n), {}
-    for name, make in IMPLEMENTATIONS.items():
-        run = make(ctx, case, d)
-        if run is not None:
-            row[name] = measure(run, repetitions(name, n, reps, sizes), min_time).scaled(1e9 / n)
-    return row
+    """{implementation: Stats in ns per element}, the implementations timed in rounds."""
+    d = make_data(ctx, case, n)
+    runs = {name: make(ctx, case, d) for name, make in IMPLEMENTATIONS.items()}
+    runs = {name: run for name, run in runs.items() if run is not None}
+    stats = interleaved(runs, {name: repetitions(name, n, reps, sizes) for name in runs}, min_time)
+    return {name: s.scaled(1e9 / n) for name, s in stats.items()}
 
 
 def singles(ctx: Context, reps: int, min_time: float) -> list[tuple[str, object]]:
