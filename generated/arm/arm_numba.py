@@ -11,8 +11,9 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. Loops over long rows run from the last row
-to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. The loops read and write rows through
+`_load` and `_store`, element access that tells LLVM the address is in range, so that it can
+vectorize loops over long rows too.
 
 Types (components in order):
     motor: s, e01, e02, e03, e12, e31, e23, e0123
@@ -24,7 +25,8 @@ Types (components in order):
 import math
 
 import numpy as np
-from numba import njit
+from numba import njit, types
+from numba.extending import intrinsic
 
 __all__ = [
     "compose",
@@ -79,6 +81,34 @@ KERNELS = {
 _FLOATS = (np.dtype(np.float64), np.dtype(np.float32))
 _F64 = _FLOATS[0]
 _ARRAY = np.ndarray
+
+
+@intrinsic
+def _load(typingctx, array, index):
+    """`array[index]` of a 1-D array, for an index known to be in range (no wraparound): the
+    address is an `inbounds` GEP, which lets LLVM vectorize loops of many loads and stores."""
+    if isinstance(array, types.Array) and array.ndim == 1 and isinstance(index, types.Integer):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            return builder.load(builder.gep(data, [args[1]], inbounds=True),
+                                align=None if sig.args[0].aligned else 1)
+        return array.dtype(array, index), codegen
+    return None
+
+
+@intrinsic
+def _store(typingctx, array, index, value):
+    """`array[index] = value` of a 1-D array, likewise; `value` is cast to the array's dtype."""
+    if (isinstance(array, types.Array) and array.ndim == 1 and array.mutable
+            and isinstance(index, types.Integer) and isinstance(value, types.Number)):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            item = context.cast(builder, args[2], sig.args[2], sig.args[0].dtype)
+            builder.store(item, builder.gep(data, [args[1]], inbounds=True),
+                          align=None if sig.args[0].aligned else 1)
+            return context.get_dummy_value()
+        return types.void(array, index, value), codegen
+    return None
 
 
 def _describe(x):
@@ -214,54 +244,54 @@ def compose(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _compose_each(a, b, out):
-    """compose of row i of every argument, for i < n, last row first."""
+    """compose of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
-        b_s = b[8*i]
-        b_e01 = b[8*i + 1]
-        b_e02 = b[8*i + 2]
-        b_e03 = b[8*i + 3]
-        b_e12 = b[8*i + 4]
-        b_e31 = b[8*i + 5]
-        b_e23 = b[8*i + 6]
-        b_e0123 = b[8*i + 7]
+    for i in range(n):
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
+        b_s = _load(b, 8*i)
+        b_e01 = _load(b, 8*i + 1)
+        b_e02 = _load(b, 8*i + 2)
+        b_e03 = _load(b, 8*i + 3)
+        b_e12 = _load(b, 8*i + 4)
+        b_e31 = _load(b, 8*i + 5)
+        b_e23 = _load(b, 8*i + 6)
+        b_e0123 = _load(b, 8*i + 7)
         # s
-        out[8*i] = a_s*b_s - a_e12*b_e12 - a_e31*b_e31 - a_e23*b_e23
+        _store(out, 8*i, a_s*b_s - a_e12*b_e12 - a_e31*b_e31 - a_e23*b_e23)
         # e01
-        out[8*i + 1] = (
+        _store(out, 8*i + 1, (
             a_s*b_e01 + a_e01*b_s - a_e02*b_e12 + a_e03*b_e31 + a_e12*b_e02 - a_e31*b_e03
             - a_e23*b_e0123 - a_e0123*b_e23
-        )
+        ))
         # e02
-        out[8*i + 2] = (
+        _store(out, 8*i + 2, (
             a_s*b_e02 + a_e01*b_e12 + a_e02*b_s - a_e03*b_e23 - a_e12*b_e01 - a_e31*b_e0123
             + a_e23*b_e03 - a_e0123*b_e31
-        )
+        ))
         # e03
-        out[8*i + 3] = (
+        _store(out, 8*i + 3, (
             a_s*b_e03 - a_e01*b_e31 + a_e02*b_e23 + a_e03*b_s - a_e12*b_e0123 + a_e31*b_e01
             - a_e23*b_e02 - a_e0123*b_e12
-        )
+        ))
         # e12
-        out[8*i + 4] = a_s*b_e12 + a_e12*b_s + a_e31*b_e23 - a_e23*b_e31
+        _store(out, 8*i + 4, a_s*b_e12 + a_e12*b_s + a_e31*b_e23 - a_e23*b_e31)
         # e31
-        out[8*i + 5] = a_s*b_e31 - a_e12*b_e23 + a_e31*b_s + a_e23*b_e12
+        _store(out, 8*i + 5, a_s*b_e31 - a_e12*b_e23 + a_e31*b_s + a_e23*b_e12)
         # e23
-        out[8*i + 6] = a_s*b_e23 + a_e12*b_e31 - a_e31*b_e12 + a_e23*b_s
+        _store(out, 8*i + 6, a_s*b_e23 + a_e12*b_e31 - a_e31*b_e12 + a_e23*b_s)
         # e0123
-        out[8*i + 7] = (
+        _store(out, 8*i + 7, (
             a_s*b_e0123 + a_e01*b_e23 + a_e02*b_e31 + a_e03*b_e12 + a_e12*b_e03 + a_e31*b_e02
             + a_e23*b_e01 + a_e0123*b_s
-        )
+        ))
 
 
 @njit(cache=True, error_model="numpy")
@@ -278,42 +308,42 @@ def _compose_one_a(a, b, out):
     a_e23 = a[6]
     a_e0123 = a[7]
     for i in range(n):
-        b_s = b[8*i]
-        b_e01 = b[8*i + 1]
-        b_e02 = b[8*i + 2]
-        b_e03 = b[8*i + 3]
-        b_e12 = b[8*i + 4]
-        b_e31 = b[8*i + 5]
-        b_e23 = b[8*i + 6]
-        b_e0123 = b[8*i + 7]
+        b_s = _load(b, 8*i)
+        b_e01 = _load(b, 8*i + 1)
+        b_e02 = _load(b, 8*i + 2)
+        b_e03 = _load(b, 8*i + 3)
+        b_e12 = _load(b, 8*i + 4)
+        b_e31 = _load(b, 8*i + 5)
+        b_e23 = _load(b, 8*i + 6)
+        b_e0123 = _load(b, 8*i + 7)
         # s
-        out[8*i] = a_s*b_s - a_e12*b_e12 - a_e31*b_e31 - a_e23*b_e23
+        _store(out, 8*i, a_s*b_s - a_e12*b_e12 - a_e31*b_e31 - a_e23*b_e23)
         # e01
-        out[8*i + 1] = (
+        _store(out, 8*i + 1, (
             a_s*b_e01 + a_e01*b_s - a_e02*b_e12 + a_e03*b_e31 + a_e12*b_e02 - a_e31*b_e03
             - a_e23*b_e0123 - a_e0123*b_e23
-        )
+        ))
         # e02
-        out[8*i + 2] = (
+        _store(out, 8*i + 2, (
             a_s*b_e02 + a_e01*b_e12 + a_e02*b_s - a_e03*b_e23 - a_e12*b_e01 - a_e31*b_e0123
             + a_e23*b_e03 - a_e0123*b_e31
-        )
+        ))
         # e03
-        out[8*i + 3] = (
+        _store(out, 8*i + 3, (
             a_s*b_e03 - a_e01*b_e31 + a_e02*b_e23 + a_e03*b_s - a_e12*b_e0123 + a_e31*b_e01
             - a_e23*b_e02 - a_e0123*b_e12
-        )
+        ))
         # e12
-        out[8*i + 4] = a_s*b_e12 + a_e12*b_s + a_e31*b_e23 - a_e23*b_e31
+        _store(out, 8*i + 4, a_s*b_e12 + a_e12*b_s + a_e31*b_e23 - a_e23*b_e31)
         # e31
-        out[8*i + 5] = a_s*b_e31 - a_e12*b_e23 + a_e31*b_s + a_e23*b_e12
+        _store(out, 8*i + 5, a_s*b_e31 - a_e12*b_e23 + a_e31*b_s + a_e23*b_e12)
         # e23
-        out[8*i + 6] = a_s*b_e23 + a_e12*b_e31 - a_e31*b_e12 + a_e23*b_s
+        _store(out, 8*i + 6, a_s*b_e23 + a_e12*b_e31 - a_e31*b_e12 + a_e23*b_s)
         # e0123
-        out[8*i + 7] = (
+        _store(out, 8*i + 7, (
             a_s*b_e0123 + a_e01*b_e23 + a_e02*b_e31 + a_e03*b_e12 + a_e12*b_e03 + a_e31*b_e02
             + a_e23*b_e01 + a_e0123*b_s
-        )
+        ))
 
 
 @njit(cache=True, error_model="numpy")
@@ -330,42 +360,42 @@ def _compose_one_b(a, b, out):
     b_e23 = b[6]
     b_e0123 = b[7]
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         # s
-        out[8*i] = a_s*b_s - a_e12*b_e12 - a_e31*b_e31 - a_e23*b_e23
+        _store(out, 8*i, a_s*b_s - a_e12*b_e12 - a_e31*b_e31 - a_e23*b_e23)
         # e01
-        out[8*i + 1] = (
+        _store(out, 8*i + 1, (
             a_s*b_e01 + a_e01*b_s - a_e02*b_e12 + a_e03*b_e31 + a_e12*b_e02 - a_e31*b_e03
             - a_e23*b_e0123 - a_e0123*b_e23
-        )
+        ))
         # e02
-        out[8*i + 2] = (
+        _store(out, 8*i + 2, (
             a_s*b_e02 + a_e01*b_e12 + a_e02*b_s - a_e03*b_e23 - a_e12*b_e01 - a_e31*b_e0123
             + a_e23*b_e03 - a_e0123*b_e31
-        )
+        ))
         # e03
-        out[8*i + 3] = (
+        _store(out, 8*i + 3, (
             a_s*b_e03 - a_e01*b_e31 + a_e02*b_e23 + a_e03*b_s - a_e12*b_e0123 + a_e31*b_e01
             - a_e23*b_e02 - a_e0123*b_e12
-        )
+        ))
         # e12
-        out[8*i + 4] = a_s*b_e12 + a_e12*b_s + a_e31*b_e23 - a_e23*b_e31
+        _store(out, 8*i + 4, a_s*b_e12 + a_e12*b_s + a_e31*b_e23 - a_e23*b_e31)
         # e31
-        out[8*i + 5] = a_s*b_e31 - a_e12*b_e23 + a_e31*b_s + a_e23*b_e12
+        _store(out, 8*i + 5, a_s*b_e31 - a_e12*b_e23 + a_e31*b_s + a_e23*b_e12)
         # e23
-        out[8*i + 6] = a_s*b_e23 + a_e12*b_e31 - a_e31*b_e12 + a_e23*b_s
+        _store(out, 8*i + 6, a_s*b_e23 + a_e12*b_e31 - a_e31*b_e12 + a_e23*b_s)
         # e0123
-        out[8*i + 7] = (
+        _store(out, 8*i + 7, (
             a_s*b_e0123 + a_e01*b_e23 + a_e02*b_e31 + a_e03*b_e12 + a_e12*b_e03 + a_e31*b_e02
             + a_e23*b_e01 + a_e0123*b_s
-        )
+        ))
 
 
 def compose_batch(a, b, out=None):
@@ -436,18 +466,18 @@ def _move_point_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
-        b_e021 = b[4*i]
-        b_e013 = b[4*i + 1]
-        b_e032 = b[4*i + 2]
-        b_e123 = b[4*i + 3]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
+        b_e021 = _load(b, 4*i)
+        b_e013 = _load(b, 4*i + 1)
+        b_e032 = _load(b, 4*i + 2)
+        b_e123 = _load(b, 4*i + 3)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e23
         q_2 = a_e12*a_e31
@@ -472,13 +502,13 @@ def _move_point_each(a, b, out):
         m2_e123 = 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123)
         m3_e123 = q_9 + q_0 + q_5 + q_3
         # e021
-        out[4*i] = m0_e021*b_e021 + m0_e013*b_e013 + m0_e032*b_e032 + m0_e123*b_e123
+        _store(out, 4*i, m0_e021*b_e021 + m0_e013*b_e013 + m0_e032*b_e032 + m0_e123*b_e123)
         # e013
-        out[4*i + 1] = m1_e021*b_e021 + m1_e013*b_e013 + m1_e032*b_e032 + m1_e123*b_e123
+        _store(out, 4*i + 1, m1_e021*b_e021 + m1_e013*b_e013 + m1_e032*b_e032 + m1_e123*b_e123)
         # e032
-        out[4*i + 2] = m2_e021*b_e021 + m2_e013*b_e013 + m2_e032*b_e032 + m2_e123*b_e123
+        _store(out, 4*i + 2, m2_e021*b_e021 + m2_e013*b_e013 + m2_e032*b_e032 + m2_e123*b_e123)
         # e123
-        out[4*i + 3] = m3_e123*b_e123
+        _store(out, 4*i + 3, m3_e123*b_e123)
 
 
 @njit(cache=True, error_model="numpy")
@@ -519,18 +549,18 @@ def _move_point_one_a(a, b, out):
     m2_e123 = 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123)
     m3_e123 = q_9 + q_0 + q_5 + q_3
     for i in range(n):
-        b_e021 = b[4*i]
-        b_e013 = b[4*i + 1]
-        b_e032 = b[4*i + 2]
-        b_e123 = b[4*i + 3]
+        b_e021 = _load(b, 4*i)
+        b_e013 = _load(b, 4*i + 1)
+        b_e032 = _load(b, 4*i + 2)
+        b_e123 = _load(b, 4*i + 3)
         # e021
-        out[4*i] = m0_e021*b_e021 + m0_e013*b_e013 + m0_e032*b_e032 + m0_e123*b_e123
+        _store(out, 4*i, m0_e021*b_e021 + m0_e013*b_e013 + m0_e032*b_e032 + m0_e123*b_e123)
         # e013
-        out[4*i + 1] = m1_e021*b_e021 + m1_e013*b_e013 + m1_e032*b_e032 + m1_e123*b_e123
+        _store(out, 4*i + 1, m1_e021*b_e021 + m1_e013*b_e013 + m1_e032*b_e032 + m1_e123*b_e123)
         # e032
-        out[4*i + 2] = m2_e021*b_e021 + m2_e013*b_e013 + m2_e032*b_e032 + m2_e123*b_e123
+        _store(out, 4*i + 2, m2_e021*b_e021 + m2_e013*b_e013 + m2_e032*b_e032 + m2_e123*b_e123)
         # e123
-        out[4*i + 3] = m3_e123*b_e123
+        _store(out, 4*i + 3, m3_e123*b_e123)
 
 
 @njit(cache=True, error_model="numpy")
@@ -543,14 +573,14 @@ def _move_point_one_b(a, b, out):
     b_e032 = b[2]
     b_e123 = b[3]
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e23
         q_2 = a_e12*a_e31
@@ -575,13 +605,13 @@ def _move_point_one_b(a, b, out):
         m2_e123 = 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123)
         m3_e123 = q_9 + q_0 + q_5 + q_3
         # e021
-        out[4*i] = m0_e021*b_e021 + m0_e013*b_e013 + m0_e032*b_e032 + m0_e123*b_e123
+        _store(out, 4*i, m0_e021*b_e021 + m0_e013*b_e013 + m0_e032*b_e032 + m0_e123*b_e123)
         # e013
-        out[4*i + 1] = m1_e021*b_e021 + m1_e013*b_e013 + m1_e032*b_e032 + m1_e123*b_e123
+        _store(out, 4*i + 1, m1_e021*b_e021 + m1_e013*b_e013 + m1_e032*b_e032 + m1_e123*b_e123)
         # e032
-        out[4*i + 2] = m2_e021*b_e021 + m2_e013*b_e013 + m2_e032*b_e032 + m2_e123*b_e123
+        _store(out, 4*i + 2, m2_e021*b_e021 + m2_e013*b_e013 + m2_e032*b_e032 + m2_e123*b_e123)
         # e123
-        out[4*i + 3] = m3_e123*b_e123
+        _store(out, 4*i + 3, m3_e123*b_e123)
 
 
 def move_point_batch(a, b, out=None):
@@ -682,24 +712,24 @@ def move_line(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _move_line_each(a, b, out):
-    """move_line of row i of every argument, for i < n, last row first."""
+    """move_line of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
-        b_e01 = b[6*i]
-        b_e02 = b[6*i + 1]
-        b_e03 = b[6*i + 2]
-        b_e12 = b[6*i + 3]
-        b_e31 = b[6*i + 4]
-        b_e23 = b[6*i + 5]
+    for i in range(n):
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
+        b_e01 = _load(b, 6*i)
+        b_e02 = _load(b, 6*i + 1)
+        b_e03 = _load(b, 6*i + 2)
+        b_e12 = _load(b, 6*i + 3)
+        b_e31 = _load(b, 6*i + 4)
+        b_e23 = _load(b, 6*i + 5)
         q_0 = a_e01*a_e12
         q_1 = a_e01*a_e23
         q_2 = a_e01*a_e31
@@ -754,26 +784,26 @@ def _move_line_each(a, b, out):
         m5_e31 = 2*(q_22 + q_16)
         m5_e23 = q_25 - q_10 - q_17 + q_14
         # e01
-        out[6*i] = (
+        _store(out, 6*i, (
             m0_e01*b_e01 + m0_e02*b_e02 + m0_e03*b_e03 + m0_e12*b_e12 + m0_e31*b_e31
             + m0_e23*b_e23
-        )
+        ))
         # e02
-        out[6*i + 1] = (
+        _store(out, 6*i + 1, (
             m1_e01*b_e01 + m1_e02*b_e02 + m1_e03*b_e03 + m1_e12*b_e12 + m1_e31*b_e31
             + m1_e23*b_e23
-        )
+        ))
         # e03
-        out[6*i + 2] = (
+        _store(out, 6*i + 2, (
             m2_e01*b_e01 + m2_e02*b_e02 + m2_e03*b_e03 + m2_e12*b_e12 + m2_e31*b_e31
             + m2_e23*b_e23
-        )
+        ))
         # e12
-        out[6*i + 3] = m3_e12*b_e12 + m3_e31*b_e31 + m3_e23*b_e23
+        _store(out, 6*i + 3, m3_e12*b_e12 + m3_e31*b_e31 + m3_e23*b_e23)
         # e31
-        out[6*i + 4] = m4_e12*b_e12 + m4_e31*b_e31 + m4_e23*b_e23
+        _store(out, 6*i + 4, m4_e12*b_e12 + m4_e31*b_e31 + m4_e23*b_e23)
         # e23
-        out[6*i + 5] = m5_e12*b_e12 + m5_e31*b_e31 + m5_e23*b_e23
+        _store(out, 6*i + 5, m5_e12*b_e12 + m5_e31*b_e31 + m5_e23*b_e23)
 
 
 @njit(cache=True, error_model="numpy")
@@ -844,33 +874,33 @@ def _move_line_one_a(a, b, out):
     m5_e31 = 2*(q_22 + q_16)
     m5_e23 = q_25 - q_10 - q_17 + q_14
     for i in range(n):
-        b_e01 = b[6*i]
-        b_e02 = b[6*i + 1]
-        b_e03 = b[6*i + 2]
-        b_e12 = b[6*i + 3]
-        b_e31 = b[6*i + 4]
-        b_e23 = b[6*i + 5]
+        b_e01 = _load(b, 6*i)
+        b_e02 = _load(b, 6*i + 1)
+        b_e03 = _load(b, 6*i + 2)
+        b_e12 = _load(b, 6*i + 3)
+        b_e31 = _load(b, 6*i + 4)
+        b_e23 = _load(b, 6*i + 5)
         # e01
-        out[6*i] = (
+        _store(out, 6*i, (
             m0_e01*b_e01 + m0_e02*b_e02 + m0_e03*b_e03 + m0_e12*b_e12 + m0_e31*b_e31
             + m0_e23*b_e23
-        )
+        ))
         # e02
-        out[6*i + 1] = (
+        _store(out, 6*i + 1, (
             m1_e01*b_e01 + m1_e02*b_e02 + m1_e03*b_e03 + m1_e12*b_e12 + m1_e31*b_e31
             + m1_e23*b_e23
-        )
+        ))
         # e03
-        out[6*i + 2] = (
+        _store(out, 6*i + 2, (
             m2_e01*b_e01 + m2_e02*b_e02 + m2_e03*b_e03 + m2_e12*b_e12 + m2_e31*b_e31
             + m2_e23*b_e23
-        )
+        ))
         # e12
-        out[6*i + 3] = m3_e12*b_e12 + m3_e31*b_e31 + m3_e23*b_e23
+        _store(out, 6*i + 3, m3_e12*b_e12 + m3_e31*b_e31 + m3_e23*b_e23)
         # e31
-        out[6*i + 4] = m4_e12*b_e12 + m4_e31*b_e31 + m4_e23*b_e23
+        _store(out, 6*i + 4, m4_e12*b_e12 + m4_e31*b_e31 + m4_e23*b_e23)
         # e23
-        out[6*i + 5] = m5_e12*b_e12 + m5_e31*b_e31 + m5_e23*b_e23
+        _store(out, 6*i + 5, m5_e12*b_e12 + m5_e31*b_e31 + m5_e23*b_e23)
 
 
 @njit(cache=True, error_model="numpy")
@@ -885,14 +915,14 @@ def _move_line_one_b(a, b, out):
     b_e31 = b[4]
     b_e23 = b[5]
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         q_0 = a_e01*a_e12
         q_1 = a_e01*a_e23
         q_2 = a_e01*a_e31
@@ -947,26 +977,26 @@ def _move_line_one_b(a, b, out):
         m5_e31 = 2*(q_22 + q_16)
         m5_e23 = q_25 - q_10 - q_17 + q_14
         # e01
-        out[6*i] = (
+        _store(out, 6*i, (
             m0_e01*b_e01 + m0_e02*b_e02 + m0_e03*b_e03 + m0_e12*b_e12 + m0_e31*b_e31
             + m0_e23*b_e23
-        )
+        ))
         # e02
-        out[6*i + 1] = (
+        _store(out, 6*i + 1, (
             m1_e01*b_e01 + m1_e02*b_e02 + m1_e03*b_e03 + m1_e12*b_e12 + m1_e31*b_e31
             + m1_e23*b_e23
-        )
+        ))
         # e03
-        out[6*i + 2] = (
+        _store(out, 6*i + 2, (
             m2_e01*b_e01 + m2_e02*b_e02 + m2_e03*b_e03 + m2_e12*b_e12 + m2_e31*b_e31
             + m2_e23*b_e23
-        )
+        ))
         # e12
-        out[6*i + 3] = m3_e12*b_e12 + m3_e31*b_e31 + m3_e23*b_e23
+        _store(out, 6*i + 3, m3_e12*b_e12 + m3_e31*b_e31 + m3_e23*b_e23)
         # e31
-        out[6*i + 4] = m4_e12*b_e12 + m4_e31*b_e31 + m4_e23*b_e23
+        _store(out, 6*i + 4, m4_e12*b_e12 + m4_e31*b_e31 + m4_e23*b_e23)
         # e23
-        out[6*i + 5] = m5_e12*b_e12 + m5_e31*b_e31 + m5_e23*b_e23
+        _store(out, 6*i + 5, m5_e12*b_e12 + m5_e31*b_e31 + m5_e23*b_e23)
 
 
 def move_line_batch(a, b, out=None):
@@ -1037,18 +1067,18 @@ def _move_plane_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e23
         q_2 = a_e12*a_e31
@@ -1073,13 +1103,13 @@ def _move_plane_each(a, b, out):
         m3_e2 = 2*(-q_7 + q_2)
         m3_e3 = q_9 + q_0 - q_5 - q_3
         # e0
-        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 4*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e1
-        out[4*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 4*i + 1, m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e2
-        out[4*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 4*i + 2, m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # e3
-        out[4*i + 3] = m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
+        _store(out, 4*i + 3, m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1120,18 +1150,18 @@ def _move_plane_one_a(a, b, out):
     m3_e2 = 2*(-q_7 + q_2)
     m3_e3 = q_9 + q_0 - q_5 - q_3
     for i in range(n):
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e0
-        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 4*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e1
-        out[4*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 4*i + 1, m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e2
-        out[4*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 4*i + 2, m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # e3
-        out[4*i + 3] = m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
+        _store(out, 4*i + 3, m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1144,14 +1174,14 @@ def _move_plane_one_b(a, b, out):
     b_e2 = b[2]
     b_e3 = b[3]
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e23
         q_2 = a_e12*a_e31
@@ -1176,13 +1206,13 @@ def _move_plane_one_b(a, b, out):
         m3_e2 = 2*(-q_7 + q_2)
         m3_e3 = q_9 + q_0 - q_5 - q_3
         # e0
-        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 4*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e1
-        out[4*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 4*i + 1, m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e2
-        out[4*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 4*i + 2, m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # e3
-        out[4*i + 3] = m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
+        _store(out, 4*i + 3, m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3)
 
 
 def move_plane_batch(a, b, out=None):
@@ -1259,18 +1289,18 @@ def motor_matrix(a):
 
 @njit(cache=True, error_model="numpy")
 def _motor_matrix_each(a, out):
-    """motor_matrix of row i of every argument, for i < n, last row first."""
+    """motor_matrix of row i of every argument, for i < n."""
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+    for i in range(n):
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e23
         q_2 = a_e12*a_e31
@@ -1282,37 +1312,37 @@ def _motor_matrix_each(a, out):
         q_8 = a_s*a_e31
         q_9 = a_s*a_s
         # m0_0
-        out[16*i] = q_9 + q_0 - q_5 - q_3
+        _store(out, 16*i, q_9 + q_0 - q_5 - q_3)
         # m0_1
-        out[16*i + 1] = 2*(-q_7 + q_2)
+        _store(out, 16*i + 1, 2*(-q_7 + q_2))
         # m0_2
-        out[16*i + 2] = 2*(q_8 + q_1)
+        _store(out, 16*i + 2, 2*(q_8 + q_1))
         # m0_3
-        out[16*i + 3] = 2*(-a_s*a_e03 - a_e01*a_e31 + a_e02*a_e23 - a_e12*a_e0123)
+        _store(out, 16*i + 3, 2*(-a_s*a_e03 - a_e01*a_e31 + a_e02*a_e23 - a_e12*a_e0123))
         # m1_0
-        out[16*i + 4] = 2*(q_7 + q_2)
+        _store(out, 16*i + 4, 2*(q_7 + q_2))
         # m1_1
-        out[16*i + 5] = q_9 - q_0 + q_5 - q_3
+        _store(out, 16*i + 5, q_9 - q_0 + q_5 - q_3)
         # m1_2
-        out[16*i + 6] = 2*(-q_6 + q_4)
+        _store(out, 16*i + 6, 2*(-q_6 + q_4))
         # m1_3
-        out[16*i + 7] = 2*(-a_s*a_e02 + a_e01*a_e12 - a_e03*a_e23 - a_e31*a_e0123)
+        _store(out, 16*i + 7, 2*(-a_s*a_e02 + a_e01*a_e12 - a_e03*a_e23 - a_e31*a_e0123))
         # m2_0
-        out[16*i + 8] = 2*(-q_8 + q_1)
+        _store(out, 16*i + 8, 2*(-q_8 + q_1))
         # m2_1
-        out[16*i + 9] = 2*(q_6 + q_4)
+        _store(out, 16*i + 9, 2*(q_6 + q_4))
         # m2_2
-        out[16*i + 10] = q_9 - q_0 - q_5 + q_3
+        _store(out, 16*i + 10, q_9 - q_0 - q_5 + q_3)
         # m2_3
-        out[16*i + 11] = 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123)
+        _store(out, 16*i + 11, 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123))
         # m3_0
-        out[16*i + 12] = 0
+        _store(out, 16*i + 12, 0)
         # m3_1
-        out[16*i + 13] = 0
+        _store(out, 16*i + 13, 0)
         # m3_2
-        out[16*i + 14] = 0
+        _store(out, 16*i + 14, 0)
         # m3_3
-        out[16*i + 15] = q_9 + q_0 + q_5 + q_3
+        _store(out, 16*i + 15, q_9 + q_0 + q_5 + q_3)
 
 
 def motor_matrix_batch(a, out=None):
@@ -1356,26 +1386,26 @@ def _join_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e021 = a[4*i]
-        a_e013 = a[4*i + 1]
-        a_e032 = a[4*i + 2]
-        a_e123 = a[4*i + 3]
-        b_e021 = b[4*i]
-        b_e013 = b[4*i + 1]
-        b_e032 = b[4*i + 2]
-        b_e123 = b[4*i + 3]
+        a_e021 = _load(a, 4*i)
+        a_e013 = _load(a, 4*i + 1)
+        a_e032 = _load(a, 4*i + 2)
+        a_e123 = _load(a, 4*i + 3)
+        b_e021 = _load(b, 4*i)
+        b_e013 = _load(b, 4*i + 1)
+        b_e032 = _load(b, 4*i + 2)
+        b_e123 = _load(b, 4*i + 3)
         # e01
-        out[6*i] = -a_e021*b_e013 + a_e013*b_e021
+        _store(out, 6*i, -a_e021*b_e013 + a_e013*b_e021)
         # e02
-        out[6*i + 1] = a_e021*b_e032 - a_e032*b_e021
+        _store(out, 6*i + 1, a_e021*b_e032 - a_e032*b_e021)
         # e03
-        out[6*i + 2] = -a_e013*b_e032 + a_e032*b_e013
+        _store(out, 6*i + 2, -a_e013*b_e032 + a_e032*b_e013)
         # e12
-        out[6*i + 3] = -a_e021*b_e123 + a_e123*b_e021
+        _store(out, 6*i + 3, -a_e021*b_e123 + a_e123*b_e021)
         # e31
-        out[6*i + 4] = -a_e013*b_e123 + a_e123*b_e013
+        _store(out, 6*i + 4, -a_e013*b_e123 + a_e123*b_e013)
         # e23
-        out[6*i + 5] = -a_e032*b_e123 + a_e123*b_e032
+        _store(out, 6*i + 5, -a_e032*b_e123 + a_e123*b_e032)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1388,22 +1418,22 @@ def _join_one_a(a, b, out):
     a_e032 = a[2]
     a_e123 = a[3]
     for i in range(n):
-        b_e021 = b[4*i]
-        b_e013 = b[4*i + 1]
-        b_e032 = b[4*i + 2]
-        b_e123 = b[4*i + 3]
+        b_e021 = _load(b, 4*i)
+        b_e013 = _load(b, 4*i + 1)
+        b_e032 = _load(b, 4*i + 2)
+        b_e123 = _load(b, 4*i + 3)
         # e01
-        out[6*i] = -a_e021*b_e013 + a_e013*b_e021
+        _store(out, 6*i, -a_e021*b_e013 + a_e013*b_e021)
         # e02
-        out[6*i + 1] = a_e021*b_e032 - a_e032*b_e021
+        _store(out, 6*i + 1, a_e021*b_e032 - a_e032*b_e021)
         # e03
-        out[6*i + 2] = -a_e013*b_e032 + a_e032*b_e013
+        _store(out, 6*i + 2, -a_e013*b_e032 + a_e032*b_e013)
         # e12
-        out[6*i + 3] = -a_e021*b_e123 + a_e123*b_e021
+        _store(out, 6*i + 3, -a_e021*b_e123 + a_e123*b_e021)
         # e31
-        out[6*i + 4] = -a_e013*b_e123 + a_e123*b_e013
+        _store(out, 6*i + 4, -a_e013*b_e123 + a_e123*b_e013)
         # e23
-        out[6*i + 5] = -a_e032*b_e123 + a_e123*b_e032
+        _store(out, 6*i + 5, -a_e032*b_e123 + a_e123*b_e032)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1416,22 +1446,22 @@ def _join_one_b(a, b, out):
     b_e032 = b[2]
     b_e123 = b[3]
     for i in range(n):
-        a_e021 = a[4*i]
-        a_e013 = a[4*i + 1]
-        a_e032 = a[4*i + 2]
-        a_e123 = a[4*i + 3]
+        a_e021 = _load(a, 4*i)
+        a_e013 = _load(a, 4*i + 1)
+        a_e032 = _load(a, 4*i + 2)
+        a_e123 = _load(a, 4*i + 3)
         # e01
-        out[6*i] = -a_e021*b_e013 + a_e013*b_e021
+        _store(out, 6*i, -a_e021*b_e013 + a_e013*b_e021)
         # e02
-        out[6*i + 1] = a_e021*b_e032 - a_e032*b_e021
+        _store(out, 6*i + 1, a_e021*b_e032 - a_e032*b_e021)
         # e03
-        out[6*i + 2] = -a_e013*b_e032 + a_e032*b_e013
+        _store(out, 6*i + 2, -a_e013*b_e032 + a_e032*b_e013)
         # e12
-        out[6*i + 3] = -a_e021*b_e123 + a_e123*b_e021
+        _store(out, 6*i + 3, -a_e021*b_e123 + a_e123*b_e021)
         # e31
-        out[6*i + 4] = -a_e013*b_e123 + a_e123*b_e013
+        _store(out, 6*i + 4, -a_e013*b_e123 + a_e123*b_e013)
         # e23
-        out[6*i + 5] = -a_e032*b_e123 + a_e123*b_e032
+        _store(out, 6*i + 5, -a_e032*b_e123 + a_e123*b_e032)
 
 
 def join_batch(a, b, out=None):
@@ -1483,26 +1513,26 @@ def _meet_planes_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e01
-        out[6*i] = a_e0*b_e1 - a_e1*b_e0
+        _store(out, 6*i, a_e0*b_e1 - a_e1*b_e0)
         # e02
-        out[6*i + 1] = a_e0*b_e2 - a_e2*b_e0
+        _store(out, 6*i + 1, a_e0*b_e2 - a_e2*b_e0)
         # e03
-        out[6*i + 2] = a_e0*b_e3 - a_e3*b_e0
+        _store(out, 6*i + 2, a_e0*b_e3 - a_e3*b_e0)
         # e12
-        out[6*i + 3] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 6*i + 3, a_e1*b_e2 - a_e2*b_e1)
         # e31
-        out[6*i + 4] = -a_e1*b_e3 + a_e3*b_e1
+        _store(out, 6*i + 4, -a_e1*b_e3 + a_e3*b_e1)
         # e23
-        out[6*i + 5] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 6*i + 5, a_e2*b_e3 - a_e3*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1515,22 +1545,22 @@ def _meet_planes_one_a(a, b, out):
     a_e2 = a[2]
     a_e3 = a[3]
     for i in range(n):
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e01
-        out[6*i] = a_e0*b_e1 - a_e1*b_e0
+        _store(out, 6*i, a_e0*b_e1 - a_e1*b_e0)
         # e02
-        out[6*i + 1] = a_e0*b_e2 - a_e2*b_e0
+        _store(out, 6*i + 1, a_e0*b_e2 - a_e2*b_e0)
         # e03
-        out[6*i + 2] = a_e0*b_e3 - a_e3*b_e0
+        _store(out, 6*i + 2, a_e0*b_e3 - a_e3*b_e0)
         # e12
-        out[6*i + 3] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 6*i + 3, a_e1*b_e2 - a_e2*b_e1)
         # e31
-        out[6*i + 4] = -a_e1*b_e3 + a_e3*b_e1
+        _store(out, 6*i + 4, -a_e1*b_e3 + a_e3*b_e1)
         # e23
-        out[6*i + 5] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 6*i + 5, a_e2*b_e3 - a_e3*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1543,22 +1573,22 @@ def _meet_planes_one_b(a, b, out):
     b_e2 = b[2]
     b_e3 = b[3]
     for i in range(n):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
         # e01
-        out[6*i] = a_e0*b_e1 - a_e1*b_e0
+        _store(out, 6*i, a_e0*b_e1 - a_e1*b_e0)
         # e02
-        out[6*i + 1] = a_e0*b_e2 - a_e2*b_e0
+        _store(out, 6*i + 1, a_e0*b_e2 - a_e2*b_e0)
         # e03
-        out[6*i + 2] = a_e0*b_e3 - a_e3*b_e0
+        _store(out, 6*i + 2, a_e0*b_e3 - a_e3*b_e0)
         # e12
-        out[6*i + 3] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 6*i + 3, a_e1*b_e2 - a_e2*b_e1)
         # e31
-        out[6*i + 4] = -a_e1*b_e3 + a_e3*b_e1
+        _store(out, 6*i + 4, -a_e1*b_e3 + a_e3*b_e1)
         # e23
-        out[6*i + 5] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 6*i + 5, a_e2*b_e3 - a_e3*b_e2)
 
 
 def meet_planes_batch(a, b, out=None):
@@ -1606,24 +1636,24 @@ def _meet_line_plane_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e01 = a[6*i]
-        a_e02 = a[6*i + 1]
-        a_e03 = a[6*i + 2]
-        a_e12 = a[6*i + 3]
-        a_e31 = a[6*i + 4]
-        a_e23 = a[6*i + 5]
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        a_e01 = _load(a, 6*i)
+        a_e02 = _load(a, 6*i + 1)
+        a_e03 = _load(a, 6*i + 2)
+        a_e12 = _load(a, 6*i + 3)
+        a_e31 = _load(a, 6*i + 4)
+        a_e23 = _load(a, 6*i + 5)
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e021
-        out[4*i] = -a_e01*b_e2 + a_e02*b_e1 - a_e12*b_e0
+        _store(out, 4*i, -a_e01*b_e2 + a_e02*b_e1 - a_e12*b_e0)
         # e013
-        out[4*i + 1] = a_e01*b_e3 - a_e03*b_e1 - a_e31*b_e0
+        _store(out, 4*i + 1, a_e01*b_e3 - a_e03*b_e1 - a_e31*b_e0)
         # e032
-        out[4*i + 2] = -a_e02*b_e3 + a_e03*b_e2 - a_e23*b_e0
+        _store(out, 4*i + 2, -a_e02*b_e3 + a_e03*b_e2 - a_e23*b_e0)
         # e123
-        out[4*i + 3] = a_e12*b_e3 + a_e31*b_e2 + a_e23*b_e1
+        _store(out, 4*i + 3, a_e12*b_e3 + a_e31*b_e2 + a_e23*b_e1)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1638,18 +1668,18 @@ def _meet_line_plane_one_a(a, b, out):
     a_e31 = a[4]
     a_e23 = a[5]
     for i in range(n):
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e021
-        out[4*i] = -a_e01*b_e2 + a_e02*b_e1 - a_e12*b_e0
+        _store(out, 4*i, -a_e01*b_e2 + a_e02*b_e1 - a_e12*b_e0)
         # e013
-        out[4*i + 1] = a_e01*b_e3 - a_e03*b_e1 - a_e31*b_e0
+        _store(out, 4*i + 1, a_e01*b_e3 - a_e03*b_e1 - a_e31*b_e0)
         # e032
-        out[4*i + 2] = -a_e02*b_e3 + a_e03*b_e2 - a_e23*b_e0
+        _store(out, 4*i + 2, -a_e02*b_e3 + a_e03*b_e2 - a_e23*b_e0)
         # e123
-        out[4*i + 3] = a_e12*b_e3 + a_e31*b_e2 + a_e23*b_e1
+        _store(out, 4*i + 3, a_e12*b_e3 + a_e31*b_e2 + a_e23*b_e1)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1662,20 +1692,20 @@ def _meet_line_plane_one_b(a, b, out):
     b_e2 = b[2]
     b_e3 = b[3]
     for i in range(n):
-        a_e01 = a[6*i]
-        a_e02 = a[6*i + 1]
-        a_e03 = a[6*i + 2]
-        a_e12 = a[6*i + 3]
-        a_e31 = a[6*i + 4]
-        a_e23 = a[6*i + 5]
+        a_e01 = _load(a, 6*i)
+        a_e02 = _load(a, 6*i + 1)
+        a_e03 = _load(a, 6*i + 2)
+        a_e12 = _load(a, 6*i + 3)
+        a_e31 = _load(a, 6*i + 4)
+        a_e23 = _load(a, 6*i + 5)
         # e021
-        out[4*i] = -a_e01*b_e2 + a_e02*b_e1 - a_e12*b_e0
+        _store(out, 4*i, -a_e01*b_e2 + a_e02*b_e1 - a_e12*b_e0)
         # e013
-        out[4*i + 1] = a_e01*b_e3 - a_e03*b_e1 - a_e31*b_e0
+        _store(out, 4*i + 1, a_e01*b_e3 - a_e03*b_e1 - a_e31*b_e0)
         # e032
-        out[4*i + 2] = -a_e02*b_e3 + a_e03*b_e2 - a_e23*b_e0
+        _store(out, 4*i + 2, -a_e02*b_e3 + a_e03*b_e2 - a_e23*b_e0)
         # e123
-        out[4*i + 3] = a_e12*b_e3 + a_e31*b_e2 + a_e23*b_e1
+        _store(out, 4*i + 3, a_e12*b_e3 + a_e31*b_e2 + a_e23*b_e1)
 
 
 def meet_line_plane_batch(a, b, out=None):
@@ -1737,12 +1767,12 @@ def _motor_from_line_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e01 = a[6*i]
-        a_e02 = a[6*i + 1]
-        a_e03 = a[6*i + 2]
-        a_e12 = a[6*i + 3]
-        a_e31 = a[6*i + 4]
-        a_e23 = a[6*i + 5]
+        a_e01 = _load(a, 6*i)
+        a_e02 = _load(a, 6*i + 1)
+        a_e03 = _load(a, 6*i + 2)
+        a_e12 = _load(a, 6*i + 3)
+        a_e31 = _load(a, 6*i + 4)
+        a_e23 = _load(a, 6*i + 5)
         t0 = -a_e12*a_e12 - a_e31*a_e31 - a_e23*a_e23
         t1 = _exp_c(t0)
         t2 = _exp_s(t0)
@@ -1751,21 +1781,21 @@ def _motor_from_line_each(a, out):
         t5 = t3*t2
         t6 = t3*t4
         # s
-        out[8*i] = t1
+        _store(out, 8*i, t1)
         # e01
-        out[8*i + 1] = t2*a_e01 - t6*a_e23
+        _store(out, 8*i + 1, t2*a_e01 - t6*a_e23)
         # e02
-        out[8*i + 2] = t2*a_e02 - t6*a_e31
+        _store(out, 8*i + 2, t2*a_e02 - t6*a_e31)
         # e03
-        out[8*i + 3] = t2*a_e03 - t6*a_e12
+        _store(out, 8*i + 3, t2*a_e03 - t6*a_e12)
         # e12
-        out[8*i + 4] = t2*a_e12
+        _store(out, 8*i + 4, t2*a_e12)
         # e31
-        out[8*i + 5] = t2*a_e31
+        _store(out, 8*i + 5, t2*a_e31)
         # e23
-        out[8*i + 6] = t2*a_e23
+        _store(out, 8*i + 6, t2*a_e23)
         # e0123
-        out[8*i + 7] = t5
+        _store(out, 8*i + 7, t5)
 
 
 def motor_from_line_batch(a, out=None):
@@ -1816,34 +1846,34 @@ def _invert_motor_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         t0 = a_s*a_s + a_e12*a_e12 + a_e31*a_e31 + a_e23*a_e23
         t1 = 1/t0
         t2 = 2*(a_s*a_e0123 - a_e01*a_e23 - a_e02*a_e31 - a_e03*a_e12)
         t3 = t2*t1*t1
         # s
-        out[8*i] = t1*a_s
+        _store(out, 8*i, t1*a_s)
         # e01
-        out[8*i + 1] = -t1*a_e01 - t3*a_e23
+        _store(out, 8*i + 1, -t1*a_e01 - t3*a_e23)
         # e02
-        out[8*i + 2] = -t1*a_e02 - t3*a_e31
+        _store(out, 8*i + 2, -t1*a_e02 - t3*a_e31)
         # e03
-        out[8*i + 3] = -t1*a_e03 - t3*a_e12
+        _store(out, 8*i + 3, -t1*a_e03 - t3*a_e12)
         # e12
-        out[8*i + 4] = -t1*a_e12
+        _store(out, 8*i + 4, -t1*a_e12)
         # e31
-        out[8*i + 5] = -t1*a_e31
+        _store(out, 8*i + 5, -t1*a_e31)
         # e23
-        out[8*i + 6] = -t1*a_e23
+        _store(out, 8*i + 6, -t1*a_e23)
         # e0123
-        out[8*i + 7] = t1*a_e0123 - t3*a_s
+        _store(out, 8*i + 7, t1*a_e0123 - t3*a_s)
 
 
 def invert_motor_batch(a, out=None):
@@ -1890,30 +1920,30 @@ def _reverse_motor_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e31 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e31 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         # s
-        out[8*i] = a_s
+        _store(out, 8*i, a_s)
         # e01
-        out[8*i + 1] = -a_e01
+        _store(out, 8*i + 1, -a_e01)
         # e02
-        out[8*i + 2] = -a_e02
+        _store(out, 8*i + 2, -a_e02)
         # e03
-        out[8*i + 3] = -a_e03
+        _store(out, 8*i + 3, -a_e03)
         # e12
-        out[8*i + 4] = -a_e12
+        _store(out, 8*i + 4, -a_e12)
         # e31
-        out[8*i + 5] = -a_e31
+        _store(out, 8*i + 5, -a_e31)
         # e23
-        out[8*i + 6] = -a_e23
+        _store(out, 8*i + 6, -a_e23)
         # e0123
-        out[8*i + 7] = a_e0123
+        _store(out, 8*i + 7, a_e0123)
 
 
 def reverse_motor_batch(a, out=None):
@@ -1952,18 +1982,18 @@ def _complement_point_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e021 = a[4*i]
-        a_e013 = a[4*i + 1]
-        a_e032 = a[4*i + 2]
-        a_e123 = a[4*i + 3]
+        a_e021 = _load(a, 4*i)
+        a_e013 = _load(a, 4*i + 1)
+        a_e032 = _load(a, 4*i + 2)
+        a_e123 = _load(a, 4*i + 3)
         # e0
-        out[4*i] = -a_e123
+        _store(out, 4*i, -a_e123)
         # e1
-        out[4*i + 1] = -a_e032
+        _store(out, 4*i + 1, -a_e032)
         # e2
-        out[4*i + 2] = -a_e013
+        _store(out, 4*i + 2, -a_e013)
         # e3
-        out[4*i + 3] = -a_e021
+        _store(out, 4*i + 3, -a_e021)
 
 
 def complement_point_batch(a, out=None):

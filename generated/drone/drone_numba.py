@@ -11,8 +11,9 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. Loops over long rows run from the last row
-to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. The loops read and write rows through
+`_load` and `_store`, element access that tells LLVM the address is in range, so that it can
+vectorize loops over long rows too.
 
 Types (components in order):
     rotor: s, e12, e13, e23
@@ -25,7 +26,8 @@ Types (components in order):
 import math
 
 import numpy as np
-from numba import njit
+from numba import njit, types
+from numba.extending import intrinsic
 
 __all__ = [
     "compose",
@@ -81,6 +83,34 @@ KERNELS = {
 _FLOATS = (np.dtype(np.float64), np.dtype(np.float32))
 _F64 = _FLOATS[0]
 _ARRAY = np.ndarray
+
+
+@intrinsic
+def _load(typingctx, array, index):
+    """`array[index]` of a 1-D array, for an index known to be in range (no wraparound): the
+    address is an `inbounds` GEP, which lets LLVM vectorize loops of many loads and stores."""
+    if isinstance(array, types.Array) and array.ndim == 1 and isinstance(index, types.Integer):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            return builder.load(builder.gep(data, [args[1]], inbounds=True),
+                                align=None if sig.args[0].aligned else 1)
+        return array.dtype(array, index), codegen
+    return None
+
+
+@intrinsic
+def _store(typingctx, array, index, value):
+    """`array[index] = value` of a 1-D array, likewise; `value` is cast to the array's dtype."""
+    if (isinstance(array, types.Array) and array.ndim == 1 and array.mutable
+            and isinstance(index, types.Integer) and isinstance(value, types.Number)):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            item = context.cast(builder, args[2], sig.args[2], sig.args[0].dtype)
+            builder.store(item, builder.gep(data, [args[1]], inbounds=True),
+                          align=None if sig.args[0].aligned else 1)
+            return context.get_dummy_value()
+        return types.void(array, index, value), codegen
+    return None
 
 
 def _describe(x):
@@ -192,22 +222,22 @@ def _compose_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
-        b_s = b[4*i]
-        b_e12 = b[4*i + 1]
-        b_e13 = b[4*i + 2]
-        b_e23 = b[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
+        b_s = _load(b, 4*i)
+        b_e12 = _load(b, 4*i + 1)
+        b_e13 = _load(b, 4*i + 2)
+        b_e23 = _load(b, 4*i + 3)
         # s
-        out[4*i] = a_s*b_s - a_e12*b_e12 - a_e13*b_e13 - a_e23*b_e23
+        _store(out, 4*i, a_s*b_s - a_e12*b_e12 - a_e13*b_e13 - a_e23*b_e23)
         # e12
-        out[4*i + 1] = a_s*b_e12 + a_e12*b_s - a_e13*b_e23 + a_e23*b_e13
+        _store(out, 4*i + 1, a_s*b_e12 + a_e12*b_s - a_e13*b_e23 + a_e23*b_e13)
         # e13
-        out[4*i + 2] = a_s*b_e13 + a_e12*b_e23 + a_e13*b_s - a_e23*b_e12
+        _store(out, 4*i + 2, a_s*b_e13 + a_e12*b_e23 + a_e13*b_s - a_e23*b_e12)
         # e23
-        out[4*i + 3] = a_s*b_e23 - a_e12*b_e13 + a_e13*b_e12 + a_e23*b_s
+        _store(out, 4*i + 3, a_s*b_e23 - a_e12*b_e13 + a_e13*b_e12 + a_e23*b_s)
 
 
 @njit(cache=True, error_model="numpy")
@@ -220,18 +250,18 @@ def _compose_one_a(a, b, out):
     a_e13 = a[2]
     a_e23 = a[3]
     for i in range(n):
-        b_s = b[4*i]
-        b_e12 = b[4*i + 1]
-        b_e13 = b[4*i + 2]
-        b_e23 = b[4*i + 3]
+        b_s = _load(b, 4*i)
+        b_e12 = _load(b, 4*i + 1)
+        b_e13 = _load(b, 4*i + 2)
+        b_e23 = _load(b, 4*i + 3)
         # s
-        out[4*i] = a_s*b_s - a_e12*b_e12 - a_e13*b_e13 - a_e23*b_e23
+        _store(out, 4*i, a_s*b_s - a_e12*b_e12 - a_e13*b_e13 - a_e23*b_e23)
         # e12
-        out[4*i + 1] = a_s*b_e12 + a_e12*b_s - a_e13*b_e23 + a_e23*b_e13
+        _store(out, 4*i + 1, a_s*b_e12 + a_e12*b_s - a_e13*b_e23 + a_e23*b_e13)
         # e13
-        out[4*i + 2] = a_s*b_e13 + a_e12*b_e23 + a_e13*b_s - a_e23*b_e12
+        _store(out, 4*i + 2, a_s*b_e13 + a_e12*b_e23 + a_e13*b_s - a_e23*b_e12)
         # e23
-        out[4*i + 3] = a_s*b_e23 - a_e12*b_e13 + a_e13*b_e12 + a_e23*b_s
+        _store(out, 4*i + 3, a_s*b_e23 - a_e12*b_e13 + a_e13*b_e12 + a_e23*b_s)
 
 
 @njit(cache=True, error_model="numpy")
@@ -244,18 +274,18 @@ def _compose_one_b(a, b, out):
     b_e13 = b[2]
     b_e23 = b[3]
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
         # s
-        out[4*i] = a_s*b_s - a_e12*b_e12 - a_e13*b_e13 - a_e23*b_e23
+        _store(out, 4*i, a_s*b_s - a_e12*b_e12 - a_e13*b_e13 - a_e23*b_e23)
         # e12
-        out[4*i + 1] = a_s*b_e12 + a_e12*b_s - a_e13*b_e23 + a_e23*b_e13
+        _store(out, 4*i + 1, a_s*b_e12 + a_e12*b_s - a_e13*b_e23 + a_e23*b_e13)
         # e13
-        out[4*i + 2] = a_s*b_e13 + a_e12*b_e23 + a_e13*b_s - a_e23*b_e12
+        _store(out, 4*i + 2, a_s*b_e13 + a_e12*b_e23 + a_e13*b_s - a_e23*b_e12)
         # e23
-        out[4*i + 3] = a_s*b_e23 - a_e12*b_e13 + a_e13*b_e12 + a_e23*b_s
+        _store(out, 4*i + 3, a_s*b_e23 - a_e12*b_e13 + a_e13*b_e12 + a_e23*b_s)
 
 
 def compose_batch(a, b, out=None):
@@ -320,13 +350,13 @@ def _rotate_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
-        b_e1 = b[3*i]
-        b_e2 = b[3*i + 1]
-        b_e3 = b[3*i + 2]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
+        b_e1 = _load(b, 3*i)
+        b_e2 = _load(b, 3*i + 1)
+        b_e3 = _load(b, 3*i + 2)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e13
         q_2 = a_e12*a_e23
@@ -347,11 +377,11 @@ def _rotate_each(a, b, out):
         m2_e2 = 2*(-q_8 - q_1)
         m2_e3 = q_9 + q_0 - q_3 - q_5
         # e1
-        out[3*i] = m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 3*i, m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e2
-        out[3*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 3*i + 1, m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e3
-        out[3*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 3*i + 2, m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -384,15 +414,15 @@ def _rotate_one_a(a, b, out):
     m2_e2 = 2*(-q_8 - q_1)
     m2_e3 = q_9 + q_0 - q_3 - q_5
     for i in range(n):
-        b_e1 = b[3*i]
-        b_e2 = b[3*i + 1]
-        b_e3 = b[3*i + 2]
+        b_e1 = _load(b, 3*i)
+        b_e2 = _load(b, 3*i + 1)
+        b_e3 = _load(b, 3*i + 2)
         # e1
-        out[3*i] = m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 3*i, m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e2
-        out[3*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 3*i + 1, m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e3
-        out[3*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 3*i + 2, m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -404,10 +434,10 @@ def _rotate_one_b(a, b, out):
     b_e2 = b[1]
     b_e3 = b[2]
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e13
         q_2 = a_e12*a_e23
@@ -428,11 +458,11 @@ def _rotate_one_b(a, b, out):
         m2_e2 = 2*(-q_8 - q_1)
         m2_e3 = q_9 + q_0 - q_3 - q_5
         # e1
-        out[3*i] = m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 3*i, m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e2
-        out[3*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 3*i + 1, m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e3
-        out[3*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 3*i + 2, m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
 
 
 def rotate_batch(a, b, out=None):
@@ -499,10 +529,10 @@ def _rotation_matrix_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e13
         q_2 = a_e12*a_e23
@@ -514,23 +544,23 @@ def _rotation_matrix_each(a, out):
         q_8 = a_s*a_e23
         q_9 = a_s*a_s
         # m0_0
-        out[9*i] = q_9 - q_0 - q_3 + q_5
+        _store(out, 9*i, q_9 - q_0 - q_3 + q_5)
         # m0_1
-        out[9*i + 1] = 2*(q_6 - q_4)
+        _store(out, 9*i + 1, 2*(q_6 - q_4))
         # m0_2
-        out[9*i + 2] = 2*(q_7 + q_2)
+        _store(out, 9*i + 2, 2*(q_7 + q_2))
         # m1_0
-        out[9*i + 3] = 2*(-q_6 - q_4)
+        _store(out, 9*i + 3, 2*(-q_6 - q_4))
         # m1_1
-        out[9*i + 4] = q_9 - q_0 + q_3 - q_5
+        _store(out, 9*i + 4, q_9 - q_0 + q_3 - q_5)
         # m1_2
-        out[9*i + 5] = 2*(q_8 - q_1)
+        _store(out, 9*i + 5, 2*(q_8 - q_1))
         # m2_0
-        out[9*i + 6] = 2*(-q_7 + q_2)
+        _store(out, 9*i + 6, 2*(-q_7 + q_2))
         # m2_1
-        out[9*i + 7] = 2*(-q_8 - q_1)
+        _store(out, 9*i + 7, 2*(-q_8 - q_1))
         # m2_2
-        out[9*i + 8] = q_9 + q_0 - q_3 - q_5
+        _store(out, 9*i + 8, q_9 + q_0 - q_3 - q_5)
 
 
 def rotation_matrix_batch(a, out=None):
@@ -572,20 +602,20 @@ def _rotor_from_rate_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e12 = a[3*i]
-        a_e13 = a[3*i + 1]
-        a_e23 = a[3*i + 2]
+        a_e12 = _load(a, 3*i)
+        a_e13 = _load(a, 3*i + 1)
+        a_e23 = _load(a, 3*i + 2)
         t0 = -a_e12*a_e12 - a_e13*a_e13 - a_e23*a_e23
         t1 = _exp_c(t0)
         t2 = _exp_s(t0)
         # s
-        out[4*i] = t1
+        _store(out, 4*i, t1)
         # e12
-        out[4*i + 1] = t2*a_e12
+        _store(out, 4*i + 1, t2*a_e12)
         # e13
-        out[4*i + 2] = t2*a_e13
+        _store(out, 4*i + 2, t2*a_e13)
         # e23
-        out[4*i + 3] = t2*a_e23
+        _store(out, 4*i + 3, t2*a_e23)
 
 
 def rotor_from_rate_batch(a, out=None):
@@ -624,18 +654,18 @@ def _reverse_rotor_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
         # s
-        out[4*i] = a_s
+        _store(out, 4*i, a_s)
         # e12
-        out[4*i + 1] = -a_e12
+        _store(out, 4*i + 1, -a_e12)
         # e13
-        out[4*i + 2] = -a_e13
+        _store(out, 4*i + 2, -a_e13)
         # e23
-        out[4*i + 3] = -a_e23
+        _store(out, 4*i + 3, -a_e23)
 
 
 def reverse_rotor_batch(a, out=None):
@@ -668,12 +698,12 @@ def _rotor_norm2_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
         # s
-        out[i] = a_s*a_s + a_e12*a_e12 + a_e13*a_e13 + a_e23*a_e23
+        _store(out, i, a_s*a_s + a_e12*a_e12 + a_e13*a_e13 + a_e23*a_e23)
 
 
 def rotor_norm2_batch(a, out=None):
@@ -714,20 +744,20 @@ def _invert_rotor_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
         t0 = a_s*a_s + a_e12*a_e12 + a_e13*a_e13 + a_e23*a_e23
         t1 = 1/t0
         # s
-        out[4*i] = t1*a_s
+        _store(out, 4*i, t1*a_s)
         # e12
-        out[4*i + 1] = -t1*a_e12
+        _store(out, 4*i + 1, -t1*a_e12)
         # e13
-        out[4*i + 2] = -t1*a_e13
+        _store(out, 4*i + 2, -t1*a_e13)
         # e23
-        out[4*i + 3] = -t1*a_e23
+        _store(out, 4*i + 3, -t1*a_e23)
 
 
 def invert_rotor_batch(a, out=None):
@@ -765,18 +795,18 @@ def _wedge_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e1 = a[3*i]
-        a_e2 = a[3*i + 1]
-        a_e3 = a[3*i + 2]
-        b_e1 = b[3*i]
-        b_e2 = b[3*i + 1]
-        b_e3 = b[3*i + 2]
+        a_e1 = _load(a, 3*i)
+        a_e2 = _load(a, 3*i + 1)
+        a_e3 = _load(a, 3*i + 2)
+        b_e1 = _load(b, 3*i)
+        b_e2 = _load(b, 3*i + 1)
+        b_e3 = _load(b, 3*i + 2)
         # e12
-        out[3*i] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 3*i, a_e1*b_e2 - a_e2*b_e1)
         # e13
-        out[3*i + 1] = a_e1*b_e3 - a_e3*b_e1
+        _store(out, 3*i + 1, a_e1*b_e3 - a_e3*b_e1)
         # e23
-        out[3*i + 2] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 3*i + 2, a_e2*b_e3 - a_e3*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -788,15 +818,15 @@ def _wedge_one_a(a, b, out):
     a_e2 = a[1]
     a_e3 = a[2]
     for i in range(n):
-        b_e1 = b[3*i]
-        b_e2 = b[3*i + 1]
-        b_e3 = b[3*i + 2]
+        b_e1 = _load(b, 3*i)
+        b_e2 = _load(b, 3*i + 1)
+        b_e3 = _load(b, 3*i + 2)
         # e12
-        out[3*i] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 3*i, a_e1*b_e2 - a_e2*b_e1)
         # e13
-        out[3*i + 1] = a_e1*b_e3 - a_e3*b_e1
+        _store(out, 3*i + 1, a_e1*b_e3 - a_e3*b_e1)
         # e23
-        out[3*i + 2] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 3*i + 2, a_e2*b_e3 - a_e3*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -808,15 +838,15 @@ def _wedge_one_b(a, b, out):
     b_e2 = b[1]
     b_e3 = b[2]
     for i in range(n):
-        a_e1 = a[3*i]
-        a_e2 = a[3*i + 1]
-        a_e3 = a[3*i + 2]
+        a_e1 = _load(a, 3*i)
+        a_e2 = _load(a, 3*i + 1)
+        a_e3 = _load(a, 3*i + 2)
         # e12
-        out[3*i] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 3*i, a_e1*b_e2 - a_e2*b_e1)
         # e13
-        out[3*i + 1] = a_e1*b_e3 - a_e3*b_e1
+        _store(out, 3*i + 1, a_e1*b_e3 - a_e3*b_e1)
         # e23
-        out[3*i + 2] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 3*i + 2, a_e2*b_e3 - a_e3*b_e2)
 
 
 def wedge_batch(a, b, out=None):
@@ -862,18 +892,18 @@ def _rate_cross_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e1 = a[3*i]
-        a_e2 = a[3*i + 1]
-        a_e3 = a[3*i + 2]
-        b_e12 = b[3*i]
-        b_e13 = b[3*i + 1]
-        b_e23 = b[3*i + 2]
+        a_e1 = _load(a, 3*i)
+        a_e2 = _load(a, 3*i + 1)
+        a_e3 = _load(a, 3*i + 2)
+        b_e12 = _load(b, 3*i)
+        b_e13 = _load(b, 3*i + 1)
+        b_e23 = _load(b, 3*i + 2)
         # e1
-        out[3*i] = -a_e2*b_e12 - a_e3*b_e13
+        _store(out, 3*i, -a_e2*b_e12 - a_e3*b_e13)
         # e2
-        out[3*i + 1] = a_e1*b_e12 - a_e3*b_e23
+        _store(out, 3*i + 1, a_e1*b_e12 - a_e3*b_e23)
         # e3
-        out[3*i + 2] = a_e1*b_e13 + a_e2*b_e23
+        _store(out, 3*i + 2, a_e1*b_e13 + a_e2*b_e23)
 
 
 @njit(cache=True, error_model="numpy")
@@ -885,15 +915,15 @@ def _rate_cross_one_a(a, b, out):
     a_e2 = a[1]
     a_e3 = a[2]
     for i in range(n):
-        b_e12 = b[3*i]
-        b_e13 = b[3*i + 1]
-        b_e23 = b[3*i + 2]
+        b_e12 = _load(b, 3*i)
+        b_e13 = _load(b, 3*i + 1)
+        b_e23 = _load(b, 3*i + 2)
         # e1
-        out[3*i] = -a_e2*b_e12 - a_e3*b_e13
+        _store(out, 3*i, -a_e2*b_e12 - a_e3*b_e13)
         # e2
-        out[3*i + 1] = a_e1*b_e12 - a_e3*b_e23
+        _store(out, 3*i + 1, a_e1*b_e12 - a_e3*b_e23)
         # e3
-        out[3*i + 2] = a_e1*b_e13 + a_e2*b_e23
+        _store(out, 3*i + 2, a_e1*b_e13 + a_e2*b_e23)
 
 
 @njit(cache=True, error_model="numpy")
@@ -905,15 +935,15 @@ def _rate_cross_one_b(a, b, out):
     b_e13 = b[1]
     b_e23 = b[2]
     for i in range(n):
-        a_e1 = a[3*i]
-        a_e2 = a[3*i + 1]
-        a_e3 = a[3*i + 2]
+        a_e1 = _load(a, 3*i)
+        a_e2 = _load(a, 3*i + 1)
+        a_e3 = _load(a, 3*i + 2)
         # e1
-        out[3*i] = -a_e2*b_e12 - a_e3*b_e13
+        _store(out, 3*i, -a_e2*b_e12 - a_e3*b_e13)
         # e2
-        out[3*i + 1] = a_e1*b_e12 - a_e3*b_e23
+        _store(out, 3*i + 1, a_e1*b_e12 - a_e3*b_e23)
         # e3
-        out[3*i + 2] = a_e1*b_e13 + a_e2*b_e23
+        _store(out, 3*i + 2, a_e1*b_e13 + a_e2*b_e23)
 
 
 def rate_cross_batch(a, b, out=None):
@@ -959,18 +989,18 @@ def _rate_bracket_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e12 = a[3*i]
-        a_e13 = a[3*i + 1]
-        a_e23 = a[3*i + 2]
-        b_e12 = b[3*i]
-        b_e13 = b[3*i + 1]
-        b_e23 = b[3*i + 2]
+        a_e12 = _load(a, 3*i)
+        a_e13 = _load(a, 3*i + 1)
+        a_e23 = _load(a, 3*i + 2)
+        b_e12 = _load(b, 3*i)
+        b_e13 = _load(b, 3*i + 1)
+        b_e23 = _load(b, 3*i + 2)
         # e12
-        out[3*i] = -a_e13*b_e23 + a_e23*b_e13
+        _store(out, 3*i, -a_e13*b_e23 + a_e23*b_e13)
         # e13
-        out[3*i + 1] = a_e12*b_e23 - a_e23*b_e12
+        _store(out, 3*i + 1, a_e12*b_e23 - a_e23*b_e12)
         # e23
-        out[3*i + 2] = -a_e12*b_e13 + a_e13*b_e12
+        _store(out, 3*i + 2, -a_e12*b_e13 + a_e13*b_e12)
 
 
 @njit(cache=True, error_model="numpy")
@@ -982,15 +1012,15 @@ def _rate_bracket_one_a(a, b, out):
     a_e13 = a[1]
     a_e23 = a[2]
     for i in range(n):
-        b_e12 = b[3*i]
-        b_e13 = b[3*i + 1]
-        b_e23 = b[3*i + 2]
+        b_e12 = _load(b, 3*i)
+        b_e13 = _load(b, 3*i + 1)
+        b_e23 = _load(b, 3*i + 2)
         # e12
-        out[3*i] = -a_e13*b_e23 + a_e23*b_e13
+        _store(out, 3*i, -a_e13*b_e23 + a_e23*b_e13)
         # e13
-        out[3*i + 1] = a_e12*b_e23 - a_e23*b_e12
+        _store(out, 3*i + 1, a_e12*b_e23 - a_e23*b_e12)
         # e23
-        out[3*i + 2] = -a_e12*b_e13 + a_e13*b_e12
+        _store(out, 3*i + 2, -a_e12*b_e13 + a_e13*b_e12)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1002,15 +1032,15 @@ def _rate_bracket_one_b(a, b, out):
     b_e13 = b[1]
     b_e23 = b[2]
     for i in range(n):
-        a_e12 = a[3*i]
-        a_e13 = a[3*i + 1]
-        a_e23 = a[3*i + 2]
+        a_e12 = _load(a, 3*i)
+        a_e13 = _load(a, 3*i + 1)
+        a_e23 = _load(a, 3*i + 2)
         # e12
-        out[3*i] = -a_e13*b_e23 + a_e23*b_e13
+        _store(out, 3*i, -a_e13*b_e23 + a_e23*b_e13)
         # e13
-        out[3*i + 1] = a_e12*b_e23 - a_e23*b_e12
+        _store(out, 3*i + 1, a_e12*b_e23 - a_e23*b_e12)
         # e23
-        out[3*i + 2] = -a_e12*b_e13 + a_e13*b_e12
+        _store(out, 3*i + 2, -a_e12*b_e13 + a_e13*b_e12)
 
 
 def rate_bracket_batch(a, b, out=None):
@@ -1055,15 +1085,15 @@ def _rate_axis_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e12 = a[3*i]
-        a_e13 = a[3*i + 1]
-        a_e23 = a[3*i + 2]
+        a_e12 = _load(a, 3*i)
+        a_e13 = _load(a, 3*i + 1)
+        a_e23 = _load(a, 3*i + 2)
         # e1
-        out[3*i] = a_e23
+        _store(out, 3*i, a_e23)
         # e2
-        out[3*i + 1] = -a_e13
+        _store(out, 3*i + 1, -a_e13)
         # e3
-        out[3*i + 2] = a_e12
+        _store(out, 3*i + 2, a_e12)
 
 
 def rate_axis_batch(a, out=None):
@@ -1115,66 +1145,66 @@ def full_product(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _full_product_each(a, b, out):
-    """full_product of row i of every argument, for i < n, last row first."""
+    """full_product of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_s = a[8*i]
-        a_e1 = a[8*i + 1]
-        a_e2 = a[8*i + 2]
-        a_e3 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e123 = a[8*i + 7]
-        b_s = b[8*i]
-        b_e1 = b[8*i + 1]
-        b_e2 = b[8*i + 2]
-        b_e3 = b[8*i + 3]
-        b_e12 = b[8*i + 4]
-        b_e13 = b[8*i + 5]
-        b_e23 = b[8*i + 6]
-        b_e123 = b[8*i + 7]
+    for i in range(n):
+        a_s = _load(a, 8*i)
+        a_e1 = _load(a, 8*i + 1)
+        a_e2 = _load(a, 8*i + 2)
+        a_e3 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e123 = _load(a, 8*i + 7)
+        b_s = _load(b, 8*i)
+        b_e1 = _load(b, 8*i + 1)
+        b_e2 = _load(b, 8*i + 2)
+        b_e3 = _load(b, 8*i + 3)
+        b_e12 = _load(b, 8*i + 4)
+        b_e13 = _load(b, 8*i + 5)
+        b_e23 = _load(b, 8*i + 6)
+        b_e123 = _load(b, 8*i + 7)
         # s
-        out[8*i] = (
+        _store(out, 8*i, (
             a_s*b_s + a_e1*b_e1 + a_e2*b_e2 + a_e3*b_e3 - a_e12*b_e12 - a_e13*b_e13
             - a_e23*b_e23 - a_e123*b_e123
-        )
+        ))
         # e1
-        out[8*i + 1] = (
+        _store(out, 8*i + 1, (
             a_s*b_e1 + a_e1*b_s - a_e2*b_e12 - a_e3*b_e13 + a_e12*b_e2 + a_e13*b_e3
             - a_e23*b_e123 - a_e123*b_e23
-        )
+        ))
         # e2
-        out[8*i + 2] = (
+        _store(out, 8*i + 2, (
             a_s*b_e2 + a_e1*b_e12 + a_e2*b_s - a_e3*b_e23 - a_e12*b_e1 + a_e13*b_e123
             + a_e23*b_e3 + a_e123*b_e13
-        )
+        ))
         # e3
-        out[8*i + 3] = (
+        _store(out, 8*i + 3, (
             a_s*b_e3 + a_e1*b_e13 + a_e2*b_e23 + a_e3*b_s - a_e12*b_e123 - a_e13*b_e1
             - a_e23*b_e2 - a_e123*b_e12
-        )
+        ))
         # e12
-        out[8*i + 4] = (
+        _store(out, 8*i + 4, (
             a_s*b_e12 + a_e1*b_e2 - a_e2*b_e1 + a_e3*b_e123 + a_e12*b_s - a_e13*b_e23
             + a_e23*b_e13 + a_e123*b_e3
-        )
+        ))
         # e13
-        out[8*i + 5] = (
+        _store(out, 8*i + 5, (
             a_s*b_e13 + a_e1*b_e3 - a_e2*b_e123 - a_e3*b_e1 + a_e12*b_e23 + a_e13*b_s
             - a_e23*b_e12 - a_e123*b_e2
-        )
+        ))
         # e23
-        out[8*i + 6] = (
+        _store(out, 8*i + 6, (
             a_s*b_e23 + a_e1*b_e123 + a_e2*b_e3 - a_e3*b_e2 - a_e12*b_e13 + a_e13*b_e12
             + a_e23*b_s + a_e123*b_e1
-        )
+        ))
         # e123
-        out[8*i + 7] = (
+        _store(out, 8*i + 7, (
             a_s*b_e123 + a_e1*b_e23 - a_e2*b_e13 + a_e3*b_e12 + a_e12*b_e3 - a_e13*b_e2
             + a_e23*b_e1 + a_e123*b_s
-        )
+        ))
 
 
 @njit(cache=True, error_model="numpy")
@@ -1191,54 +1221,54 @@ def _full_product_one_a(a, b, out):
     a_e23 = a[6]
     a_e123 = a[7]
     for i in range(n):
-        b_s = b[8*i]
-        b_e1 = b[8*i + 1]
-        b_e2 = b[8*i + 2]
-        b_e3 = b[8*i + 3]
-        b_e12 = b[8*i + 4]
-        b_e13 = b[8*i + 5]
-        b_e23 = b[8*i + 6]
-        b_e123 = b[8*i + 7]
+        b_s = _load(b, 8*i)
+        b_e1 = _load(b, 8*i + 1)
+        b_e2 = _load(b, 8*i + 2)
+        b_e3 = _load(b, 8*i + 3)
+        b_e12 = _load(b, 8*i + 4)
+        b_e13 = _load(b, 8*i + 5)
+        b_e23 = _load(b, 8*i + 6)
+        b_e123 = _load(b, 8*i + 7)
         # s
-        out[8*i] = (
+        _store(out, 8*i, (
             a_s*b_s + a_e1*b_e1 + a_e2*b_e2 + a_e3*b_e3 - a_e12*b_e12 - a_e13*b_e13
             - a_e23*b_e23 - a_e123*b_e123
-        )
+        ))
         # e1
-        out[8*i + 1] = (
+        _store(out, 8*i + 1, (
             a_s*b_e1 + a_e1*b_s - a_e2*b_e12 - a_e3*b_e13 + a_e12*b_e2 + a_e13*b_e3
             - a_e23*b_e123 - a_e123*b_e23
-        )
+        ))
         # e2
-        out[8*i + 2] = (
+        _store(out, 8*i + 2, (
             a_s*b_e2 + a_e1*b_e12 + a_e2*b_s - a_e3*b_e23 - a_e12*b_e1 + a_e13*b_e123
             + a_e23*b_e3 + a_e123*b_e13
-        )
+        ))
         # e3
-        out[8*i + 3] = (
+        _store(out, 8*i + 3, (
             a_s*b_e3 + a_e1*b_e13 + a_e2*b_e23 + a_e3*b_s - a_e12*b_e123 - a_e13*b_e1
             - a_e23*b_e2 - a_e123*b_e12
-        )
+        ))
         # e12
-        out[8*i + 4] = (
+        _store(out, 8*i + 4, (
             a_s*b_e12 + a_e1*b_e2 - a_e2*b_e1 + a_e3*b_e123 + a_e12*b_s - a_e13*b_e23
             + a_e23*b_e13 + a_e123*b_e3
-        )
+        ))
         # e13
-        out[8*i + 5] = (
+        _store(out, 8*i + 5, (
             a_s*b_e13 + a_e1*b_e3 - a_e2*b_e123 - a_e3*b_e1 + a_e12*b_e23 + a_e13*b_s
             - a_e23*b_e12 - a_e123*b_e2
-        )
+        ))
         # e23
-        out[8*i + 6] = (
+        _store(out, 8*i + 6, (
             a_s*b_e23 + a_e1*b_e123 + a_e2*b_e3 - a_e3*b_e2 - a_e12*b_e13 + a_e13*b_e12
             + a_e23*b_s + a_e123*b_e1
-        )
+        ))
         # e123
-        out[8*i + 7] = (
+        _store(out, 8*i + 7, (
             a_s*b_e123 + a_e1*b_e23 - a_e2*b_e13 + a_e3*b_e12 + a_e12*b_e3 - a_e13*b_e2
             + a_e23*b_e1 + a_e123*b_s
-        )
+        ))
 
 
 @njit(cache=True, error_model="numpy")
@@ -1255,54 +1285,54 @@ def _full_product_one_b(a, b, out):
     b_e23 = b[6]
     b_e123 = b[7]
     for i in range(n):
-        a_s = a[8*i]
-        a_e1 = a[8*i + 1]
-        a_e2 = a[8*i + 2]
-        a_e3 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e1 = _load(a, 8*i + 1)
+        a_e2 = _load(a, 8*i + 2)
+        a_e3 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e123 = _load(a, 8*i + 7)
         # s
-        out[8*i] = (
+        _store(out, 8*i, (
             a_s*b_s + a_e1*b_e1 + a_e2*b_e2 + a_e3*b_e3 - a_e12*b_e12 - a_e13*b_e13
             - a_e23*b_e23 - a_e123*b_e123
-        )
+        ))
         # e1
-        out[8*i + 1] = (
+        _store(out, 8*i + 1, (
             a_s*b_e1 + a_e1*b_s - a_e2*b_e12 - a_e3*b_e13 + a_e12*b_e2 + a_e13*b_e3
             - a_e23*b_e123 - a_e123*b_e23
-        )
+        ))
         # e2
-        out[8*i + 2] = (
+        _store(out, 8*i + 2, (
             a_s*b_e2 + a_e1*b_e12 + a_e2*b_s - a_e3*b_e23 - a_e12*b_e1 + a_e13*b_e123
             + a_e23*b_e3 + a_e123*b_e13
-        )
+        ))
         # e3
-        out[8*i + 3] = (
+        _store(out, 8*i + 3, (
             a_s*b_e3 + a_e1*b_e13 + a_e2*b_e23 + a_e3*b_s - a_e12*b_e123 - a_e13*b_e1
             - a_e23*b_e2 - a_e123*b_e12
-        )
+        ))
         # e12
-        out[8*i + 4] = (
+        _store(out, 8*i + 4, (
             a_s*b_e12 + a_e1*b_e2 - a_e2*b_e1 + a_e3*b_e123 + a_e12*b_s - a_e13*b_e23
             + a_e23*b_e13 + a_e123*b_e3
-        )
+        ))
         # e13
-        out[8*i + 5] = (
+        _store(out, 8*i + 5, (
             a_s*b_e13 + a_e1*b_e3 - a_e2*b_e123 - a_e3*b_e1 + a_e12*b_e23 + a_e13*b_s
             - a_e23*b_e12 - a_e123*b_e2
-        )
+        ))
         # e23
-        out[8*i + 6] = (
+        _store(out, 8*i + 6, (
             a_s*b_e23 + a_e1*b_e123 + a_e2*b_e3 - a_e3*b_e2 - a_e12*b_e13 + a_e13*b_e12
             + a_e23*b_s + a_e123*b_e1
-        )
+        ))
         # e123
-        out[8*i + 7] = (
+        _store(out, 8*i + 7, (
             a_s*b_e123 + a_e1*b_e23 - a_e2*b_e13 + a_e3*b_e12 + a_e12*b_e3 - a_e13*b_e2
             + a_e23*b_e1 + a_e123*b_s
-        )
+        ))
 
 
 def full_product_batch(a, b, out=None):

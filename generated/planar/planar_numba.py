@@ -11,8 +11,9 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. Loops over long rows run from the last row
-to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. The loops read and write rows through
+`_load` and `_store`, element access that tells LLVM the address is in range, so that it can
+vectorize loops over long rows too.
 
 Types (components in order):
     motor: s, e01, e20, e12
@@ -23,7 +24,8 @@ Types (components in order):
 import math
 
 import numpy as np
-from numba import njit
+from numba import njit, types
+from numba.extending import intrinsic
 
 __all__ = [
     "compose",
@@ -68,6 +70,34 @@ KERNELS = {
 _FLOATS = (np.dtype(np.float64), np.dtype(np.float32))
 _F64 = _FLOATS[0]
 _ARRAY = np.ndarray
+
+
+@intrinsic
+def _load(typingctx, array, index):
+    """`array[index]` of a 1-D array, for an index known to be in range (no wraparound): the
+    address is an `inbounds` GEP, which lets LLVM vectorize loops of many loads and stores."""
+    if isinstance(array, types.Array) and array.ndim == 1 and isinstance(index, types.Integer):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            return builder.load(builder.gep(data, [args[1]], inbounds=True),
+                                align=None if sig.args[0].aligned else 1)
+        return array.dtype(array, index), codegen
+    return None
+
+
+@intrinsic
+def _store(typingctx, array, index, value):
+    """`array[index] = value` of a 1-D array, likewise; `value` is cast to the array's dtype."""
+    if (isinstance(array, types.Array) and array.ndim == 1 and array.mutable
+            and isinstance(index, types.Integer) and isinstance(value, types.Number)):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            item = context.cast(builder, args[2], sig.args[2], sig.args[0].dtype)
+            builder.store(item, builder.gep(data, [args[1]], inbounds=True),
+                          align=None if sig.args[0].aligned else 1)
+            return context.get_dummy_value()
+        return types.void(array, index, value), codegen
+    return None
 
 
 def _describe(x):
@@ -179,22 +209,22 @@ def _compose_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e20 = a[4*i + 2]
-        a_e12 = a[4*i + 3]
-        b_s = b[4*i]
-        b_e01 = b[4*i + 1]
-        b_e20 = b[4*i + 2]
-        b_e12 = b[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e20 = _load(a, 4*i + 2)
+        a_e12 = _load(a, 4*i + 3)
+        b_s = _load(b, 4*i)
+        b_e01 = _load(b, 4*i + 1)
+        b_e20 = _load(b, 4*i + 2)
+        b_e12 = _load(b, 4*i + 3)
         # s
-        out[4*i] = a_s*b_s - a_e12*b_e12
+        _store(out, 4*i, a_s*b_s - a_e12*b_e12)
         # e01
-        out[4*i + 1] = a_s*b_e01 + a_e01*b_s + a_e20*b_e12 - a_e12*b_e20
+        _store(out, 4*i + 1, a_s*b_e01 + a_e01*b_s + a_e20*b_e12 - a_e12*b_e20)
         # e20
-        out[4*i + 2] = a_s*b_e20 - a_e01*b_e12 + a_e20*b_s + a_e12*b_e01
+        _store(out, 4*i + 2, a_s*b_e20 - a_e01*b_e12 + a_e20*b_s + a_e12*b_e01)
         # e12
-        out[4*i + 3] = a_s*b_e12 + a_e12*b_s
+        _store(out, 4*i + 3, a_s*b_e12 + a_e12*b_s)
 
 
 @njit(cache=True, error_model="numpy")
@@ -207,18 +237,18 @@ def _compose_one_a(a, b, out):
     a_e20 = a[2]
     a_e12 = a[3]
     for i in range(n):
-        b_s = b[4*i]
-        b_e01 = b[4*i + 1]
-        b_e20 = b[4*i + 2]
-        b_e12 = b[4*i + 3]
+        b_s = _load(b, 4*i)
+        b_e01 = _load(b, 4*i + 1)
+        b_e20 = _load(b, 4*i + 2)
+        b_e12 = _load(b, 4*i + 3)
         # s
-        out[4*i] = a_s*b_s - a_e12*b_e12
+        _store(out, 4*i, a_s*b_s - a_e12*b_e12)
         # e01
-        out[4*i + 1] = a_s*b_e01 + a_e01*b_s + a_e20*b_e12 - a_e12*b_e20
+        _store(out, 4*i + 1, a_s*b_e01 + a_e01*b_s + a_e20*b_e12 - a_e12*b_e20)
         # e20
-        out[4*i + 2] = a_s*b_e20 - a_e01*b_e12 + a_e20*b_s + a_e12*b_e01
+        _store(out, 4*i + 2, a_s*b_e20 - a_e01*b_e12 + a_e20*b_s + a_e12*b_e01)
         # e12
-        out[4*i + 3] = a_s*b_e12 + a_e12*b_s
+        _store(out, 4*i + 3, a_s*b_e12 + a_e12*b_s)
 
 
 @njit(cache=True, error_model="numpy")
@@ -231,18 +261,18 @@ def _compose_one_b(a, b, out):
     b_e20 = b[2]
     b_e12 = b[3]
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e20 = a[4*i + 2]
-        a_e12 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e20 = _load(a, 4*i + 2)
+        a_e12 = _load(a, 4*i + 3)
         # s
-        out[4*i] = a_s*b_s - a_e12*b_e12
+        _store(out, 4*i, a_s*b_s - a_e12*b_e12)
         # e01
-        out[4*i + 1] = a_s*b_e01 + a_e01*b_s + a_e20*b_e12 - a_e12*b_e20
+        _store(out, 4*i + 1, a_s*b_e01 + a_e01*b_s + a_e20*b_e12 - a_e12*b_e20)
         # e20
-        out[4*i + 2] = a_s*b_e20 - a_e01*b_e12 + a_e20*b_s + a_e12*b_e01
+        _store(out, 4*i + 2, a_s*b_e20 - a_e01*b_e12 + a_e20*b_s + a_e12*b_e01)
         # e12
-        out[4*i + 3] = a_s*b_e12 + a_e12*b_s
+        _store(out, 4*i + 3, a_s*b_e12 + a_e12*b_s)
 
 
 def compose_batch(a, b, out=None):
@@ -298,13 +328,13 @@ def _move_point_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e20 = a[4*i + 2]
-        a_e12 = a[4*i + 3]
-        b_e20 = b[3*i]
-        b_e01 = b[3*i + 1]
-        b_e12 = b[3*i + 2]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e20 = _load(a, 4*i + 2)
+        a_e12 = _load(a, 4*i + 3)
+        b_e20 = _load(b, 3*i)
+        b_e01 = _load(b, 3*i + 1)
+        b_e12 = _load(b, 3*i + 2)
         q_0 = a_e12*a_e12
         q_1 = a_s*a_e12
         q_2 = a_s*a_s
@@ -316,11 +346,11 @@ def _move_point_each(a, b, out):
         m1_e12 = 2*(a_s*a_e20 + a_e01*a_e12)
         m2_e12 = q_2 + q_0
         # e20
-        out[3*i] = m0_e20*b_e20 + m0_e01*b_e01 + m0_e12*b_e12
+        _store(out, 3*i, m0_e20*b_e20 + m0_e01*b_e01 + m0_e12*b_e12)
         # e01
-        out[3*i + 1] = m1_e20*b_e20 + m1_e01*b_e01 + m1_e12*b_e12
+        _store(out, 3*i + 1, m1_e20*b_e20 + m1_e01*b_e01 + m1_e12*b_e12)
         # e12
-        out[3*i + 2] = m2_e12*b_e12
+        _store(out, 3*i + 2, m2_e12*b_e12)
 
 
 @njit(cache=True, error_model="numpy")
@@ -344,15 +374,15 @@ def _move_point_one_a(a, b, out):
     m1_e12 = 2*(a_s*a_e20 + a_e01*a_e12)
     m2_e12 = q_2 + q_0
     for i in range(n):
-        b_e20 = b[3*i]
-        b_e01 = b[3*i + 1]
-        b_e12 = b[3*i + 2]
+        b_e20 = _load(b, 3*i)
+        b_e01 = _load(b, 3*i + 1)
+        b_e12 = _load(b, 3*i + 2)
         # e20
-        out[3*i] = m0_e20*b_e20 + m0_e01*b_e01 + m0_e12*b_e12
+        _store(out, 3*i, m0_e20*b_e20 + m0_e01*b_e01 + m0_e12*b_e12)
         # e01
-        out[3*i + 1] = m1_e20*b_e20 + m1_e01*b_e01 + m1_e12*b_e12
+        _store(out, 3*i + 1, m1_e20*b_e20 + m1_e01*b_e01 + m1_e12*b_e12)
         # e12
-        out[3*i + 2] = m2_e12*b_e12
+        _store(out, 3*i + 2, m2_e12*b_e12)
 
 
 @njit(cache=True, error_model="numpy")
@@ -364,10 +394,10 @@ def _move_point_one_b(a, b, out):
     b_e01 = b[1]
     b_e12 = b[2]
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e20 = a[4*i + 2]
-        a_e12 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e20 = _load(a, 4*i + 2)
+        a_e12 = _load(a, 4*i + 3)
         q_0 = a_e12*a_e12
         q_1 = a_s*a_e12
         q_2 = a_s*a_s
@@ -379,11 +409,11 @@ def _move_point_one_b(a, b, out):
         m1_e12 = 2*(a_s*a_e20 + a_e01*a_e12)
         m2_e12 = q_2 + q_0
         # e20
-        out[3*i] = m0_e20*b_e20 + m0_e01*b_e01 + m0_e12*b_e12
+        _store(out, 3*i, m0_e20*b_e20 + m0_e01*b_e01 + m0_e12*b_e12)
         # e01
-        out[3*i + 1] = m1_e20*b_e20 + m1_e01*b_e01 + m1_e12*b_e12
+        _store(out, 3*i + 1, m1_e20*b_e20 + m1_e01*b_e01 + m1_e12*b_e12)
         # e12
-        out[3*i + 2] = m2_e12*b_e12
+        _store(out, 3*i + 2, m2_e12*b_e12)
 
 
 def move_point_batch(a, b, out=None):
@@ -439,13 +469,13 @@ def _move_line_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e20 = a[4*i + 2]
-        a_e12 = a[4*i + 3]
-        b_e0 = b[3*i]
-        b_e1 = b[3*i + 1]
-        b_e2 = b[3*i + 2]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e20 = _load(a, 4*i + 2)
+        a_e12 = _load(a, 4*i + 3)
+        b_e0 = _load(b, 3*i)
+        b_e1 = _load(b, 3*i + 1)
+        b_e2 = _load(b, 3*i + 2)
         q_0 = a_e12*a_e12
         q_1 = a_s*a_e12
         q_2 = a_s*a_s
@@ -457,11 +487,11 @@ def _move_line_each(a, b, out):
         m2_e1 = -2*q_1
         m2_e2 = q_2 - q_0
         # e0
-        out[3*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2
+        _store(out, 3*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2)
         # e1
-        out[3*i + 1] = m1_e1*b_e1 + m1_e2*b_e2
+        _store(out, 3*i + 1, m1_e1*b_e1 + m1_e2*b_e2)
         # e2
-        out[3*i + 2] = m2_e1*b_e1 + m2_e2*b_e2
+        _store(out, 3*i + 2, m2_e1*b_e1 + m2_e2*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -485,15 +515,15 @@ def _move_line_one_a(a, b, out):
     m2_e1 = -2*q_1
     m2_e2 = q_2 - q_0
     for i in range(n):
-        b_e0 = b[3*i]
-        b_e1 = b[3*i + 1]
-        b_e2 = b[3*i + 2]
+        b_e0 = _load(b, 3*i)
+        b_e1 = _load(b, 3*i + 1)
+        b_e2 = _load(b, 3*i + 2)
         # e0
-        out[3*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2
+        _store(out, 3*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2)
         # e1
-        out[3*i + 1] = m1_e1*b_e1 + m1_e2*b_e2
+        _store(out, 3*i + 1, m1_e1*b_e1 + m1_e2*b_e2)
         # e2
-        out[3*i + 2] = m2_e1*b_e1 + m2_e2*b_e2
+        _store(out, 3*i + 2, m2_e1*b_e1 + m2_e2*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -505,10 +535,10 @@ def _move_line_one_b(a, b, out):
     b_e1 = b[1]
     b_e2 = b[2]
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e20 = a[4*i + 2]
-        a_e12 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e20 = _load(a, 4*i + 2)
+        a_e12 = _load(a, 4*i + 3)
         q_0 = a_e12*a_e12
         q_1 = a_s*a_e12
         q_2 = a_s*a_s
@@ -520,11 +550,11 @@ def _move_line_one_b(a, b, out):
         m2_e1 = -2*q_1
         m2_e2 = q_2 - q_0
         # e0
-        out[3*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2
+        _store(out, 3*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2)
         # e1
-        out[3*i + 1] = m1_e1*b_e1 + m1_e2*b_e2
+        _store(out, 3*i + 1, m1_e1*b_e1 + m1_e2*b_e2)
         # e2
-        out[3*i + 2] = m2_e1*b_e1 + m2_e2*b_e2
+        _store(out, 3*i + 2, m2_e1*b_e1 + m2_e2*b_e2)
 
 
 def move_line_batch(a, b, out=None):
@@ -570,18 +600,18 @@ def _join_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e20 = a[3*i]
-        a_e01 = a[3*i + 1]
-        a_e12 = a[3*i + 2]
-        b_e20 = b[3*i]
-        b_e01 = b[3*i + 1]
-        b_e12 = b[3*i + 2]
+        a_e20 = _load(a, 3*i)
+        a_e01 = _load(a, 3*i + 1)
+        a_e12 = _load(a, 3*i + 2)
+        b_e20 = _load(b, 3*i)
+        b_e01 = _load(b, 3*i + 1)
+        b_e12 = _load(b, 3*i + 2)
         # e0
-        out[3*i] = a_e20*b_e01 - a_e01*b_e20
+        _store(out, 3*i, a_e20*b_e01 - a_e01*b_e20)
         # e1
-        out[3*i + 1] = a_e01*b_e12 - a_e12*b_e01
+        _store(out, 3*i + 1, a_e01*b_e12 - a_e12*b_e01)
         # e2
-        out[3*i + 2] = -a_e20*b_e12 + a_e12*b_e20
+        _store(out, 3*i + 2, -a_e20*b_e12 + a_e12*b_e20)
 
 
 @njit(cache=True, error_model="numpy")
@@ -593,15 +623,15 @@ def _join_one_a(a, b, out):
     a_e01 = a[1]
     a_e12 = a[2]
     for i in range(n):
-        b_e20 = b[3*i]
-        b_e01 = b[3*i + 1]
-        b_e12 = b[3*i + 2]
+        b_e20 = _load(b, 3*i)
+        b_e01 = _load(b, 3*i + 1)
+        b_e12 = _load(b, 3*i + 2)
         # e0
-        out[3*i] = a_e20*b_e01 - a_e01*b_e20
+        _store(out, 3*i, a_e20*b_e01 - a_e01*b_e20)
         # e1
-        out[3*i + 1] = a_e01*b_e12 - a_e12*b_e01
+        _store(out, 3*i + 1, a_e01*b_e12 - a_e12*b_e01)
         # e2
-        out[3*i + 2] = -a_e20*b_e12 + a_e12*b_e20
+        _store(out, 3*i + 2, -a_e20*b_e12 + a_e12*b_e20)
 
 
 @njit(cache=True, error_model="numpy")
@@ -613,15 +643,15 @@ def _join_one_b(a, b, out):
     b_e01 = b[1]
     b_e12 = b[2]
     for i in range(n):
-        a_e20 = a[3*i]
-        a_e01 = a[3*i + 1]
-        a_e12 = a[3*i + 2]
+        a_e20 = _load(a, 3*i)
+        a_e01 = _load(a, 3*i + 1)
+        a_e12 = _load(a, 3*i + 2)
         # e0
-        out[3*i] = a_e20*b_e01 - a_e01*b_e20
+        _store(out, 3*i, a_e20*b_e01 - a_e01*b_e20)
         # e1
-        out[3*i + 1] = a_e01*b_e12 - a_e12*b_e01
+        _store(out, 3*i + 1, a_e01*b_e12 - a_e12*b_e01)
         # e2
-        out[3*i + 2] = -a_e20*b_e12 + a_e12*b_e20
+        _store(out, 3*i + 2, -a_e20*b_e12 + a_e12*b_e20)
 
 
 def join_batch(a, b, out=None):
@@ -667,18 +697,18 @@ def _meet_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e0 = a[3*i]
-        a_e1 = a[3*i + 1]
-        a_e2 = a[3*i + 2]
-        b_e0 = b[3*i]
-        b_e1 = b[3*i + 1]
-        b_e2 = b[3*i + 2]
+        a_e0 = _load(a, 3*i)
+        a_e1 = _load(a, 3*i + 1)
+        a_e2 = _load(a, 3*i + 2)
+        b_e0 = _load(b, 3*i)
+        b_e1 = _load(b, 3*i + 1)
+        b_e2 = _load(b, 3*i + 2)
         # e20
-        out[3*i] = -a_e0*b_e2 + a_e2*b_e0
+        _store(out, 3*i, -a_e0*b_e2 + a_e2*b_e0)
         # e01
-        out[3*i + 1] = a_e0*b_e1 - a_e1*b_e0
+        _store(out, 3*i + 1, a_e0*b_e1 - a_e1*b_e0)
         # e12
-        out[3*i + 2] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 3*i + 2, a_e1*b_e2 - a_e2*b_e1)
 
 
 @njit(cache=True, error_model="numpy")
@@ -690,15 +720,15 @@ def _meet_one_a(a, b, out):
     a_e1 = a[1]
     a_e2 = a[2]
     for i in range(n):
-        b_e0 = b[3*i]
-        b_e1 = b[3*i + 1]
-        b_e2 = b[3*i + 2]
+        b_e0 = _load(b, 3*i)
+        b_e1 = _load(b, 3*i + 1)
+        b_e2 = _load(b, 3*i + 2)
         # e20
-        out[3*i] = -a_e0*b_e2 + a_e2*b_e0
+        _store(out, 3*i, -a_e0*b_e2 + a_e2*b_e0)
         # e01
-        out[3*i + 1] = a_e0*b_e1 - a_e1*b_e0
+        _store(out, 3*i + 1, a_e0*b_e1 - a_e1*b_e0)
         # e12
-        out[3*i + 2] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 3*i + 2, a_e1*b_e2 - a_e2*b_e1)
 
 
 @njit(cache=True, error_model="numpy")
@@ -710,15 +740,15 @@ def _meet_one_b(a, b, out):
     b_e1 = b[1]
     b_e2 = b[2]
     for i in range(n):
-        a_e0 = a[3*i]
-        a_e1 = a[3*i + 1]
-        a_e2 = a[3*i + 2]
+        a_e0 = _load(a, 3*i)
+        a_e1 = _load(a, 3*i + 1)
+        a_e2 = _load(a, 3*i + 2)
         # e20
-        out[3*i] = -a_e0*b_e2 + a_e2*b_e0
+        _store(out, 3*i, -a_e0*b_e2 + a_e2*b_e0)
         # e01
-        out[3*i + 1] = a_e0*b_e1 - a_e1*b_e0
+        _store(out, 3*i + 1, a_e0*b_e1 - a_e1*b_e0)
         # e12
-        out[3*i + 2] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 3*i + 2, a_e1*b_e2 - a_e2*b_e1)
 
 
 def meet_batch(a, b, out=None):
@@ -768,20 +798,20 @@ def _motor_from_point_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e20 = a[3*i]
-        a_e01 = a[3*i + 1]
-        a_e12 = a[3*i + 2]
+        a_e20 = _load(a, 3*i)
+        a_e01 = _load(a, 3*i + 1)
+        a_e12 = _load(a, 3*i + 2)
         t0 = -a_e12*a_e12
         t1 = _exp_c(t0)
         t2 = _exp_s(t0)
         # s
-        out[4*i] = t1
+        _store(out, 4*i, t1)
         # e01
-        out[4*i + 1] = t2*a_e01
+        _store(out, 4*i + 1, t2*a_e01)
         # e20
-        out[4*i + 2] = t2*a_e20
+        _store(out, 4*i + 2, t2*a_e20)
         # e12
-        out[4*i + 3] = t2*a_e12
+        _store(out, 4*i + 3, t2*a_e12)
 
 
 def motor_from_point_batch(a, out=None):
@@ -822,20 +852,20 @@ def _invert_motor_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e20 = a[4*i + 2]
-        a_e12 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e20 = _load(a, 4*i + 2)
+        a_e12 = _load(a, 4*i + 3)
         t0 = a_s*a_s + a_e12*a_e12
         t1 = 1/t0
         # s
-        out[4*i] = t1*a_s
+        _store(out, 4*i, t1*a_s)
         # e01
-        out[4*i + 1] = -t1*a_e01
+        _store(out, 4*i + 1, -t1*a_e01)
         # e20
-        out[4*i + 2] = -t1*a_e20
+        _store(out, 4*i + 2, -t1*a_e20)
         # e12
-        out[4*i + 3] = -t1*a_e12
+        _store(out, 4*i + 3, -t1*a_e12)
 
 
 def invert_motor_batch(a, out=None):
@@ -873,18 +903,18 @@ def _project_line_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e0 = a[3*i]
-        a_e1 = a[3*i + 1]
-        a_e2 = a[3*i + 2]
-        b_e20 = b[3*i]
-        b_e01 = b[3*i + 1]
-        b_e12 = b[3*i + 2]
+        a_e0 = _load(a, 3*i)
+        a_e1 = _load(a, 3*i + 1)
+        a_e2 = _load(a, 3*i + 2)
+        b_e20 = _load(b, 3*i)
+        b_e01 = _load(b, 3*i + 1)
+        b_e12 = _load(b, 3*i + 2)
         # e0
-        out[3*i] = -a_e1*b_e01 + a_e2*b_e20
+        _store(out, 3*i, -a_e1*b_e01 + a_e2*b_e20)
         # e1
-        out[3*i + 1] = -a_e2*b_e12
+        _store(out, 3*i + 1, -a_e2*b_e12)
         # e2
-        out[3*i + 2] = a_e1*b_e12
+        _store(out, 3*i + 2, a_e1*b_e12)
 
 
 @njit(cache=True, error_model="numpy")
@@ -896,15 +926,15 @@ def _project_line_one_a(a, b, out):
     a_e1 = a[1]
     a_e2 = a[2]
     for i in range(n):
-        b_e20 = b[3*i]
-        b_e01 = b[3*i + 1]
-        b_e12 = b[3*i + 2]
+        b_e20 = _load(b, 3*i)
+        b_e01 = _load(b, 3*i + 1)
+        b_e12 = _load(b, 3*i + 2)
         # e0
-        out[3*i] = -a_e1*b_e01 + a_e2*b_e20
+        _store(out, 3*i, -a_e1*b_e01 + a_e2*b_e20)
         # e1
-        out[3*i + 1] = -a_e2*b_e12
+        _store(out, 3*i + 1, -a_e2*b_e12)
         # e2
-        out[3*i + 2] = a_e1*b_e12
+        _store(out, 3*i + 2, a_e1*b_e12)
 
 
 @njit(cache=True, error_model="numpy")
@@ -916,15 +946,15 @@ def _project_line_one_b(a, b, out):
     b_e01 = b[1]
     b_e12 = b[2]
     for i in range(n):
-        a_e0 = a[3*i]
-        a_e1 = a[3*i + 1]
-        a_e2 = a[3*i + 2]
+        a_e0 = _load(a, 3*i)
+        a_e1 = _load(a, 3*i + 1)
+        a_e2 = _load(a, 3*i + 2)
         # e0
-        out[3*i] = -a_e1*b_e01 + a_e2*b_e20
+        _store(out, 3*i, -a_e1*b_e01 + a_e2*b_e20)
         # e1
-        out[3*i + 1] = -a_e2*b_e12
+        _store(out, 3*i + 1, -a_e2*b_e12)
         # e2
-        out[3*i + 2] = a_e1*b_e12
+        _store(out, 3*i + 2, a_e1*b_e12)
 
 
 def project_line_batch(a, b, out=None):
@@ -968,16 +998,16 @@ def _velocity_bracket_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e20 = a[3*i]
-        a_e01 = a[3*i + 1]
-        a_e12 = a[3*i + 2]
-        b_e20 = b[3*i]
-        b_e01 = b[3*i + 1]
-        b_e12 = b[3*i + 2]
+        a_e20 = _load(a, 3*i)
+        a_e01 = _load(a, 3*i + 1)
+        a_e12 = _load(a, 3*i + 2)
+        b_e20 = _load(b, 3*i)
+        b_e01 = _load(b, 3*i + 1)
+        b_e12 = _load(b, 3*i + 2)
         # e01
-        out[2*i] = a_e20*b_e12 - a_e12*b_e20
+        _store(out, 2*i, a_e20*b_e12 - a_e12*b_e20)
         # e20
-        out[2*i + 1] = -a_e01*b_e12 + a_e12*b_e01
+        _store(out, 2*i + 1, -a_e01*b_e12 + a_e12*b_e01)
 
 
 @njit(cache=True, error_model="numpy")
@@ -989,13 +1019,13 @@ def _velocity_bracket_one_a(a, b, out):
     a_e01 = a[1]
     a_e12 = a[2]
     for i in range(n):
-        b_e20 = b[3*i]
-        b_e01 = b[3*i + 1]
-        b_e12 = b[3*i + 2]
+        b_e20 = _load(b, 3*i)
+        b_e01 = _load(b, 3*i + 1)
+        b_e12 = _load(b, 3*i + 2)
         # e01
-        out[2*i] = a_e20*b_e12 - a_e12*b_e20
+        _store(out, 2*i, a_e20*b_e12 - a_e12*b_e20)
         # e20
-        out[2*i + 1] = -a_e01*b_e12 + a_e12*b_e01
+        _store(out, 2*i + 1, -a_e01*b_e12 + a_e12*b_e01)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1007,13 +1037,13 @@ def _velocity_bracket_one_b(a, b, out):
     b_e01 = b[1]
     b_e12 = b[2]
     for i in range(n):
-        a_e20 = a[3*i]
-        a_e01 = a[3*i + 1]
-        a_e12 = a[3*i + 2]
+        a_e20 = _load(a, 3*i)
+        a_e01 = _load(a, 3*i + 1)
+        a_e12 = _load(a, 3*i + 2)
         # e01
-        out[2*i] = a_e20*b_e12 - a_e12*b_e20
+        _store(out, 2*i, a_e20*b_e12 - a_e12*b_e20)
         # e20
-        out[2*i + 1] = -a_e01*b_e12 + a_e12*b_e01
+        _store(out, 2*i + 1, -a_e01*b_e12 + a_e12*b_e01)
 
 
 def velocity_bracket_batch(a, b, out=None):

@@ -11,8 +11,9 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. Loops over long rows run from the last row
-to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. The loops read and write rows through
+`_load` and `_store`, element access that tells LLVM the address is in range, so that it can
+vectorize loops over long rows too.
 
 Types (components in order):
     euclid: e1, e2, e3
@@ -30,7 +31,8 @@ Types (components in order):
 import math
 
 import numpy as np
-from numba import njit
+from numba import njit, types
+from numba.extending import intrinsic
 
 __all__ = [
     "up",
@@ -91,6 +93,34 @@ KERNELS = {
 _FLOATS = (np.dtype(np.float64), np.dtype(np.float32))
 _F64 = _FLOATS[0]
 _ARRAY = np.ndarray
+
+
+@intrinsic
+def _load(typingctx, array, index):
+    """`array[index]` of a 1-D array, for an index known to be in range (no wraparound): the
+    address is an `inbounds` GEP, which lets LLVM vectorize loops of many loads and stores."""
+    if isinstance(array, types.Array) and array.ndim == 1 and isinstance(index, types.Integer):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            return builder.load(builder.gep(data, [args[1]], inbounds=True),
+                                align=None if sig.args[0].aligned else 1)
+        return array.dtype(array, index), codegen
+    return None
+
+
+@intrinsic
+def _store(typingctx, array, index, value):
+    """`array[index] = value` of a 1-D array, likewise; `value` is cast to the array's dtype."""
+    if (isinstance(array, types.Array) and array.ndim == 1 and array.mutable
+            and isinstance(index, types.Integer) and isinstance(value, types.Number)):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            item = context.cast(builder, args[2], sig.args[2], sig.args[0].dtype)
+            builder.store(item, builder.gep(data, [args[1]], inbounds=True),
+                          align=None if sig.args[0].aligned else 1)
+            return context.get_dummy_value()
+        return types.void(array, index, value), codegen
+    return None
 
 
 def _describe(x):
@@ -203,19 +233,19 @@ def _up_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e1 = a[3*i]
-        a_e2 = a[3*i + 1]
-        a_e3 = a[3*i + 2]
+        a_e1 = _load(a, 3*i)
+        a_e2 = _load(a, 3*i + 1)
+        a_e3 = _load(a, 3*i + 2)
         # e1
-        out[5*i] = a_e1
+        _store(out, 5*i, a_e1)
         # e2
-        out[5*i + 1] = a_e2
+        _store(out, 5*i + 1, a_e2)
         # e3
-        out[5*i + 2] = a_e3
+        _store(out, 5*i + 2, a_e3)
         # eo
-        out[5*i + 3] = 1
+        _store(out, 5*i + 3, 1)
         # ei
-        out[5*i + 4] = 0.5*(a_e1*a_e1 + a_e2*a_e2 + a_e3*a_e3)
+        _store(out, 5*i + 4, 0.5*(a_e1*a_e1 + a_e2*a_e2 + a_e3*a_e3))
 
 
 def up_batch(a, out=None):
@@ -249,18 +279,18 @@ def _inner_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e1 = a[5*i]
-        a_e2 = a[5*i + 1]
-        a_e3 = a[5*i + 2]
-        a_eo = a[5*i + 3]
-        a_ei = a[5*i + 4]
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        a_e1 = _load(a, 5*i)
+        a_e2 = _load(a, 5*i + 1)
+        a_e3 = _load(a, 5*i + 2)
+        a_eo = _load(a, 5*i + 3)
+        a_ei = _load(a, 5*i + 4)
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # s
-        out[i] = a_e1*b_e1 + a_e2*b_e2 + a_e3*b_e3 - a_eo*b_ei - a_ei*b_eo
+        _store(out, i, a_e1*b_e1 + a_e2*b_e2 + a_e3*b_e3 - a_eo*b_ei - a_ei*b_eo)
 
 
 @njit(cache=True, error_model="numpy")
@@ -274,13 +304,13 @@ def _inner_one_a(a, b, out):
     a_eo = a[3]
     a_ei = a[4]
     for i in range(n):
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # s
-        out[i] = a_e1*b_e1 + a_e2*b_e2 + a_e3*b_e3 - a_eo*b_ei - a_ei*b_eo
+        _store(out, i, a_e1*b_e1 + a_e2*b_e2 + a_e3*b_e3 - a_eo*b_ei - a_ei*b_eo)
 
 
 @njit(cache=True, error_model="numpy")
@@ -294,13 +324,13 @@ def _inner_one_b(a, b, out):
     b_eo = b[3]
     b_ei = b[4]
     for i in range(n):
-        a_e1 = a[5*i]
-        a_e2 = a[5*i + 1]
-        a_e3 = a[5*i + 2]
-        a_eo = a[5*i + 3]
-        a_ei = a[5*i + 4]
+        a_e1 = _load(a, 5*i)
+        a_e2 = _load(a, 5*i + 1)
+        a_e3 = _load(a, 5*i + 2)
+        a_eo = _load(a, 5*i + 3)
+        a_ei = _load(a, 5*i + 4)
         # s
-        out[i] = a_e1*b_e1 + a_e2*b_e2 + a_e3*b_e3 - a_eo*b_ei - a_ei*b_eo
+        _store(out, i, a_e1*b_e1 + a_e2*b_e2 + a_e3*b_e3 - a_eo*b_ei - a_ei*b_eo)
 
 
 def inner_batch(a, b, out=None):
@@ -356,40 +386,40 @@ def pair_of(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _pair_of_each(a, b, out):
-    """pair_of of row i of every argument, for i < n, last row first."""
+    """pair_of of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_e1 = a[5*i]
-        a_e2 = a[5*i + 1]
-        a_e3 = a[5*i + 2]
-        a_eo = a[5*i + 3]
-        a_ei = a[5*i + 4]
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+    for i in range(n):
+        a_e1 = _load(a, 5*i)
+        a_e2 = _load(a, 5*i + 1)
+        a_e3 = _load(a, 5*i + 2)
+        a_eo = _load(a, 5*i + 3)
+        a_ei = _load(a, 5*i + 4)
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e12
-        out[10*i] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 10*i, a_e1*b_e2 - a_e2*b_e1)
         # e13
-        out[10*i + 1] = a_e1*b_e3 - a_e3*b_e1
+        _store(out, 10*i + 1, a_e1*b_e3 - a_e3*b_e1)
         # e1o
-        out[10*i + 2] = a_e1*b_eo - a_eo*b_e1
+        _store(out, 10*i + 2, a_e1*b_eo - a_eo*b_e1)
         # e1i
-        out[10*i + 3] = a_e1*b_ei - a_ei*b_e1
+        _store(out, 10*i + 3, a_e1*b_ei - a_ei*b_e1)
         # e23
-        out[10*i + 4] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 10*i + 4, a_e2*b_e3 - a_e3*b_e2)
         # e2o
-        out[10*i + 5] = a_e2*b_eo - a_eo*b_e2
+        _store(out, 10*i + 5, a_e2*b_eo - a_eo*b_e2)
         # e2i
-        out[10*i + 6] = a_e2*b_ei - a_ei*b_e2
+        _store(out, 10*i + 6, a_e2*b_ei - a_ei*b_e2)
         # e3o
-        out[10*i + 7] = a_e3*b_eo - a_eo*b_e3
+        _store(out, 10*i + 7, a_e3*b_eo - a_eo*b_e3)
         # e3i
-        out[10*i + 8] = a_e3*b_ei - a_ei*b_e3
+        _store(out, 10*i + 8, a_e3*b_ei - a_ei*b_e3)
         # eoi
-        out[10*i + 9] = a_eo*b_ei - a_ei*b_eo
+        _store(out, 10*i + 9, a_eo*b_ei - a_ei*b_eo)
 
 
 @njit(cache=True, error_model="numpy")
@@ -403,31 +433,31 @@ def _pair_of_one_a(a, b, out):
     a_eo = a[3]
     a_ei = a[4]
     for i in range(n):
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e12
-        out[10*i] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 10*i, a_e1*b_e2 - a_e2*b_e1)
         # e13
-        out[10*i + 1] = a_e1*b_e3 - a_e3*b_e1
+        _store(out, 10*i + 1, a_e1*b_e3 - a_e3*b_e1)
         # e1o
-        out[10*i + 2] = a_e1*b_eo - a_eo*b_e1
+        _store(out, 10*i + 2, a_e1*b_eo - a_eo*b_e1)
         # e1i
-        out[10*i + 3] = a_e1*b_ei - a_ei*b_e1
+        _store(out, 10*i + 3, a_e1*b_ei - a_ei*b_e1)
         # e23
-        out[10*i + 4] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 10*i + 4, a_e2*b_e3 - a_e3*b_e2)
         # e2o
-        out[10*i + 5] = a_e2*b_eo - a_eo*b_e2
+        _store(out, 10*i + 5, a_e2*b_eo - a_eo*b_e2)
         # e2i
-        out[10*i + 6] = a_e2*b_ei - a_ei*b_e2
+        _store(out, 10*i + 6, a_e2*b_ei - a_ei*b_e2)
         # e3o
-        out[10*i + 7] = a_e3*b_eo - a_eo*b_e3
+        _store(out, 10*i + 7, a_e3*b_eo - a_eo*b_e3)
         # e3i
-        out[10*i + 8] = a_e3*b_ei - a_ei*b_e3
+        _store(out, 10*i + 8, a_e3*b_ei - a_ei*b_e3)
         # eoi
-        out[10*i + 9] = a_eo*b_ei - a_ei*b_eo
+        _store(out, 10*i + 9, a_eo*b_ei - a_ei*b_eo)
 
 
 @njit(cache=True, error_model="numpy")
@@ -441,31 +471,31 @@ def _pair_of_one_b(a, b, out):
     b_eo = b[3]
     b_ei = b[4]
     for i in range(n):
-        a_e1 = a[5*i]
-        a_e2 = a[5*i + 1]
-        a_e3 = a[5*i + 2]
-        a_eo = a[5*i + 3]
-        a_ei = a[5*i + 4]
+        a_e1 = _load(a, 5*i)
+        a_e2 = _load(a, 5*i + 1)
+        a_e3 = _load(a, 5*i + 2)
+        a_eo = _load(a, 5*i + 3)
+        a_ei = _load(a, 5*i + 4)
         # e12
-        out[10*i] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 10*i, a_e1*b_e2 - a_e2*b_e1)
         # e13
-        out[10*i + 1] = a_e1*b_e3 - a_e3*b_e1
+        _store(out, 10*i + 1, a_e1*b_e3 - a_e3*b_e1)
         # e1o
-        out[10*i + 2] = a_e1*b_eo - a_eo*b_e1
+        _store(out, 10*i + 2, a_e1*b_eo - a_eo*b_e1)
         # e1i
-        out[10*i + 3] = a_e1*b_ei - a_ei*b_e1
+        _store(out, 10*i + 3, a_e1*b_ei - a_ei*b_e1)
         # e23
-        out[10*i + 4] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 10*i + 4, a_e2*b_e3 - a_e3*b_e2)
         # e2o
-        out[10*i + 5] = a_e2*b_eo - a_eo*b_e2
+        _store(out, 10*i + 5, a_e2*b_eo - a_eo*b_e2)
         # e2i
-        out[10*i + 6] = a_e2*b_ei - a_ei*b_e2
+        _store(out, 10*i + 6, a_e2*b_ei - a_ei*b_e2)
         # e3o
-        out[10*i + 7] = a_e3*b_eo - a_eo*b_e3
+        _store(out, 10*i + 7, a_e3*b_eo - a_eo*b_e3)
         # e3i
-        out[10*i + 8] = a_e3*b_ei - a_ei*b_e3
+        _store(out, 10*i + 8, a_e3*b_ei - a_ei*b_e3)
         # eoi
-        out[10*i + 9] = a_eo*b_ei - a_ei*b_eo
+        _store(out, 10*i + 9, a_eo*b_ei - a_ei*b_eo)
 
 
 def pair_of_batch(a, b, out=None):
@@ -521,45 +551,45 @@ def circle_of(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _circle_of_each(a, b, out):
-    """circle_of of row i of every argument, for i < n, last row first."""
+    """circle_of of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_e12 = a[10*i]
-        a_e13 = a[10*i + 1]
-        a_e1o = a[10*i + 2]
-        a_e1i = a[10*i + 3]
-        a_e23 = a[10*i + 4]
-        a_e2o = a[10*i + 5]
-        a_e2i = a[10*i + 6]
-        a_e3o = a[10*i + 7]
-        a_e3i = a[10*i + 8]
-        a_eoi = a[10*i + 9]
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+    for i in range(n):
+        a_e12 = _load(a, 10*i)
+        a_e13 = _load(a, 10*i + 1)
+        a_e1o = _load(a, 10*i + 2)
+        a_e1i = _load(a, 10*i + 3)
+        a_e23 = _load(a, 10*i + 4)
+        a_e2o = _load(a, 10*i + 5)
+        a_e2i = _load(a, 10*i + 6)
+        a_e3o = _load(a, 10*i + 7)
+        a_e3i = _load(a, 10*i + 8)
+        a_eoi = _load(a, 10*i + 9)
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e123
-        out[10*i] = a_e12*b_e3 - a_e13*b_e2 + a_e23*b_e1
+        _store(out, 10*i, a_e12*b_e3 - a_e13*b_e2 + a_e23*b_e1)
         # e12o
-        out[10*i + 1] = a_e12*b_eo - a_e1o*b_e2 + a_e2o*b_e1
+        _store(out, 10*i + 1, a_e12*b_eo - a_e1o*b_e2 + a_e2o*b_e1)
         # e12i
-        out[10*i + 2] = a_e12*b_ei - a_e1i*b_e2 + a_e2i*b_e1
+        _store(out, 10*i + 2, a_e12*b_ei - a_e1i*b_e2 + a_e2i*b_e1)
         # e13o
-        out[10*i + 3] = a_e13*b_eo - a_e1o*b_e3 + a_e3o*b_e1
+        _store(out, 10*i + 3, a_e13*b_eo - a_e1o*b_e3 + a_e3o*b_e1)
         # e13i
-        out[10*i + 4] = a_e13*b_ei - a_e1i*b_e3 + a_e3i*b_e1
+        _store(out, 10*i + 4, a_e13*b_ei - a_e1i*b_e3 + a_e3i*b_e1)
         # e1oi
-        out[10*i + 5] = a_e1o*b_ei - a_e1i*b_eo + a_eoi*b_e1
+        _store(out, 10*i + 5, a_e1o*b_ei - a_e1i*b_eo + a_eoi*b_e1)
         # e23o
-        out[10*i + 6] = a_e23*b_eo - a_e2o*b_e3 + a_e3o*b_e2
+        _store(out, 10*i + 6, a_e23*b_eo - a_e2o*b_e3 + a_e3o*b_e2)
         # e23i
-        out[10*i + 7] = a_e23*b_ei - a_e2i*b_e3 + a_e3i*b_e2
+        _store(out, 10*i + 7, a_e23*b_ei - a_e2i*b_e3 + a_e3i*b_e2)
         # e2oi
-        out[10*i + 8] = a_e2o*b_ei - a_e2i*b_eo + a_eoi*b_e2
+        _store(out, 10*i + 8, a_e2o*b_ei - a_e2i*b_eo + a_eoi*b_e2)
         # e3oi
-        out[10*i + 9] = a_e3o*b_ei - a_e3i*b_eo + a_eoi*b_e3
+        _store(out, 10*i + 9, a_e3o*b_ei - a_e3i*b_eo + a_eoi*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -578,36 +608,36 @@ def _circle_of_one_a(a, b, out):
     a_e3i = a[8]
     a_eoi = a[9]
     for i in range(n):
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e123
-        out[10*i] = a_e12*b_e3 - a_e13*b_e2 + a_e23*b_e1
+        _store(out, 10*i, a_e12*b_e3 - a_e13*b_e2 + a_e23*b_e1)
         # e12o
-        out[10*i + 1] = a_e12*b_eo - a_e1o*b_e2 + a_e2o*b_e1
+        _store(out, 10*i + 1, a_e12*b_eo - a_e1o*b_e2 + a_e2o*b_e1)
         # e12i
-        out[10*i + 2] = a_e12*b_ei - a_e1i*b_e2 + a_e2i*b_e1
+        _store(out, 10*i + 2, a_e12*b_ei - a_e1i*b_e2 + a_e2i*b_e1)
         # e13o
-        out[10*i + 3] = a_e13*b_eo - a_e1o*b_e3 + a_e3o*b_e1
+        _store(out, 10*i + 3, a_e13*b_eo - a_e1o*b_e3 + a_e3o*b_e1)
         # e13i
-        out[10*i + 4] = a_e13*b_ei - a_e1i*b_e3 + a_e3i*b_e1
+        _store(out, 10*i + 4, a_e13*b_ei - a_e1i*b_e3 + a_e3i*b_e1)
         # e1oi
-        out[10*i + 5] = a_e1o*b_ei - a_e1i*b_eo + a_eoi*b_e1
+        _store(out, 10*i + 5, a_e1o*b_ei - a_e1i*b_eo + a_eoi*b_e1)
         # e23o
-        out[10*i + 6] = a_e23*b_eo - a_e2o*b_e3 + a_e3o*b_e2
+        _store(out, 10*i + 6, a_e23*b_eo - a_e2o*b_e3 + a_e3o*b_e2)
         # e23i
-        out[10*i + 7] = a_e23*b_ei - a_e2i*b_e3 + a_e3i*b_e2
+        _store(out, 10*i + 7, a_e23*b_ei - a_e2i*b_e3 + a_e3i*b_e2)
         # e2oi
-        out[10*i + 8] = a_e2o*b_ei - a_e2i*b_eo + a_eoi*b_e2
+        _store(out, 10*i + 8, a_e2o*b_ei - a_e2i*b_eo + a_eoi*b_e2)
         # e3oi
-        out[10*i + 9] = a_e3o*b_ei - a_e3i*b_eo + a_eoi*b_e3
+        _store(out, 10*i + 9, a_e3o*b_ei - a_e3i*b_eo + a_eoi*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
 def _circle_of_one_b(a, b, out):
-    """circle_of of one `b` with each row of the other argument, last row first."""
+    """circle_of of one `b` with each row of the other argument."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     b_e1 = b[0]
@@ -615,37 +645,37 @@ def _circle_of_one_b(a, b, out):
     b_e3 = b[2]
     b_eo = b[3]
     b_ei = b[4]
-    for i in range(n - 1, -1, -1):
-        a_e12 = a[10*i]
-        a_e13 = a[10*i + 1]
-        a_e1o = a[10*i + 2]
-        a_e1i = a[10*i + 3]
-        a_e23 = a[10*i + 4]
-        a_e2o = a[10*i + 5]
-        a_e2i = a[10*i + 6]
-        a_e3o = a[10*i + 7]
-        a_e3i = a[10*i + 8]
-        a_eoi = a[10*i + 9]
+    for i in range(n):
+        a_e12 = _load(a, 10*i)
+        a_e13 = _load(a, 10*i + 1)
+        a_e1o = _load(a, 10*i + 2)
+        a_e1i = _load(a, 10*i + 3)
+        a_e23 = _load(a, 10*i + 4)
+        a_e2o = _load(a, 10*i + 5)
+        a_e2i = _load(a, 10*i + 6)
+        a_e3o = _load(a, 10*i + 7)
+        a_e3i = _load(a, 10*i + 8)
+        a_eoi = _load(a, 10*i + 9)
         # e123
-        out[10*i] = a_e12*b_e3 - a_e13*b_e2 + a_e23*b_e1
+        _store(out, 10*i, a_e12*b_e3 - a_e13*b_e2 + a_e23*b_e1)
         # e12o
-        out[10*i + 1] = a_e12*b_eo - a_e1o*b_e2 + a_e2o*b_e1
+        _store(out, 10*i + 1, a_e12*b_eo - a_e1o*b_e2 + a_e2o*b_e1)
         # e12i
-        out[10*i + 2] = a_e12*b_ei - a_e1i*b_e2 + a_e2i*b_e1
+        _store(out, 10*i + 2, a_e12*b_ei - a_e1i*b_e2 + a_e2i*b_e1)
         # e13o
-        out[10*i + 3] = a_e13*b_eo - a_e1o*b_e3 + a_e3o*b_e1
+        _store(out, 10*i + 3, a_e13*b_eo - a_e1o*b_e3 + a_e3o*b_e1)
         # e13i
-        out[10*i + 4] = a_e13*b_ei - a_e1i*b_e3 + a_e3i*b_e1
+        _store(out, 10*i + 4, a_e13*b_ei - a_e1i*b_e3 + a_e3i*b_e1)
         # e1oi
-        out[10*i + 5] = a_e1o*b_ei - a_e1i*b_eo + a_eoi*b_e1
+        _store(out, 10*i + 5, a_e1o*b_ei - a_e1i*b_eo + a_eoi*b_e1)
         # e23o
-        out[10*i + 6] = a_e23*b_eo - a_e2o*b_e3 + a_e3o*b_e2
+        _store(out, 10*i + 6, a_e23*b_eo - a_e2o*b_e3 + a_e3o*b_e2)
         # e23i
-        out[10*i + 7] = a_e23*b_ei - a_e2i*b_e3 + a_e3i*b_e2
+        _store(out, 10*i + 7, a_e23*b_ei - a_e2i*b_e3 + a_e3i*b_e2)
         # e2oi
-        out[10*i + 8] = a_e2o*b_ei - a_e2i*b_eo + a_eoi*b_e2
+        _store(out, 10*i + 8, a_e2o*b_ei - a_e2i*b_eo + a_eoi*b_e2)
         # e3oi
-        out[10*i + 9] = a_e3o*b_ei - a_e3i*b_eo + a_eoi*b_e3
+        _store(out, 10*i + 9, a_e3o*b_ei - a_e3i*b_eo + a_eoi*b_e3)
 
 
 def circle_of_batch(a, b, out=None):
@@ -691,35 +721,35 @@ def sphere_of(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _sphere_of_each(a, b, out):
-    """sphere_of of row i of every argument, for i < n, last row first."""
+    """sphere_of of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_e123 = a[10*i]
-        a_e12o = a[10*i + 1]
-        a_e12i = a[10*i + 2]
-        a_e13o = a[10*i + 3]
-        a_e13i = a[10*i + 4]
-        a_e1oi = a[10*i + 5]
-        a_e23o = a[10*i + 6]
-        a_e23i = a[10*i + 7]
-        a_e2oi = a[10*i + 8]
-        a_e3oi = a[10*i + 9]
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+    for i in range(n):
+        a_e123 = _load(a, 10*i)
+        a_e12o = _load(a, 10*i + 1)
+        a_e12i = _load(a, 10*i + 2)
+        a_e13o = _load(a, 10*i + 3)
+        a_e13i = _load(a, 10*i + 4)
+        a_e1oi = _load(a, 10*i + 5)
+        a_e23o = _load(a, 10*i + 6)
+        a_e23i = _load(a, 10*i + 7)
+        a_e2oi = _load(a, 10*i + 8)
+        a_e3oi = _load(a, 10*i + 9)
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e123o
-        out[5*i] = a_e123*b_eo - a_e12o*b_e3 + a_e13o*b_e2 - a_e23o*b_e1
+        _store(out, 5*i, a_e123*b_eo - a_e12o*b_e3 + a_e13o*b_e2 - a_e23o*b_e1)
         # e123i
-        out[5*i + 1] = a_e123*b_ei - a_e12i*b_e3 + a_e13i*b_e2 - a_e23i*b_e1
+        _store(out, 5*i + 1, a_e123*b_ei - a_e12i*b_e3 + a_e13i*b_e2 - a_e23i*b_e1)
         # e12oi
-        out[5*i + 2] = a_e12o*b_ei - a_e12i*b_eo + a_e1oi*b_e2 - a_e2oi*b_e1
+        _store(out, 5*i + 2, a_e12o*b_ei - a_e12i*b_eo + a_e1oi*b_e2 - a_e2oi*b_e1)
         # e13oi
-        out[5*i + 3] = a_e13o*b_ei - a_e13i*b_eo + a_e1oi*b_e3 - a_e3oi*b_e1
+        _store(out, 5*i + 3, a_e13o*b_ei - a_e13i*b_eo + a_e1oi*b_e3 - a_e3oi*b_e1)
         # e23oi
-        out[5*i + 4] = a_e23o*b_ei - a_e23i*b_eo + a_e2oi*b_e3 - a_e3oi*b_e2
+        _store(out, 5*i + 4, a_e23o*b_ei - a_e23i*b_eo + a_e2oi*b_e3 - a_e3oi*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -738,21 +768,21 @@ def _sphere_of_one_a(a, b, out):
     a_e2oi = a[8]
     a_e3oi = a[9]
     for i in range(n):
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e123o
-        out[5*i] = a_e123*b_eo - a_e12o*b_e3 + a_e13o*b_e2 - a_e23o*b_e1
+        _store(out, 5*i, a_e123*b_eo - a_e12o*b_e3 + a_e13o*b_e2 - a_e23o*b_e1)
         # e123i
-        out[5*i + 1] = a_e123*b_ei - a_e12i*b_e3 + a_e13i*b_e2 - a_e23i*b_e1
+        _store(out, 5*i + 1, a_e123*b_ei - a_e12i*b_e3 + a_e13i*b_e2 - a_e23i*b_e1)
         # e12oi
-        out[5*i + 2] = a_e12o*b_ei - a_e12i*b_eo + a_e1oi*b_e2 - a_e2oi*b_e1
+        _store(out, 5*i + 2, a_e12o*b_ei - a_e12i*b_eo + a_e1oi*b_e2 - a_e2oi*b_e1)
         # e13oi
-        out[5*i + 3] = a_e13o*b_ei - a_e13i*b_eo + a_e1oi*b_e3 - a_e3oi*b_e1
+        _store(out, 5*i + 3, a_e13o*b_ei - a_e13i*b_eo + a_e1oi*b_e3 - a_e3oi*b_e1)
         # e23oi
-        out[5*i + 4] = a_e23o*b_ei - a_e23i*b_eo + a_e2oi*b_e3 - a_e3oi*b_e2
+        _store(out, 5*i + 4, a_e23o*b_ei - a_e23i*b_eo + a_e2oi*b_e3 - a_e3oi*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -766,26 +796,26 @@ def _sphere_of_one_b(a, b, out):
     b_eo = b[3]
     b_ei = b[4]
     for i in range(n):
-        a_e123 = a[10*i]
-        a_e12o = a[10*i + 1]
-        a_e12i = a[10*i + 2]
-        a_e13o = a[10*i + 3]
-        a_e13i = a[10*i + 4]
-        a_e1oi = a[10*i + 5]
-        a_e23o = a[10*i + 6]
-        a_e23i = a[10*i + 7]
-        a_e2oi = a[10*i + 8]
-        a_e3oi = a[10*i + 9]
+        a_e123 = _load(a, 10*i)
+        a_e12o = _load(a, 10*i + 1)
+        a_e12i = _load(a, 10*i + 2)
+        a_e13o = _load(a, 10*i + 3)
+        a_e13i = _load(a, 10*i + 4)
+        a_e1oi = _load(a, 10*i + 5)
+        a_e23o = _load(a, 10*i + 6)
+        a_e23i = _load(a, 10*i + 7)
+        a_e2oi = _load(a, 10*i + 8)
+        a_e3oi = _load(a, 10*i + 9)
         # e123o
-        out[5*i] = a_e123*b_eo - a_e12o*b_e3 + a_e13o*b_e2 - a_e23o*b_e1
+        _store(out, 5*i, a_e123*b_eo - a_e12o*b_e3 + a_e13o*b_e2 - a_e23o*b_e1)
         # e123i
-        out[5*i + 1] = a_e123*b_ei - a_e12i*b_e3 + a_e13i*b_e2 - a_e23i*b_e1
+        _store(out, 5*i + 1, a_e123*b_ei - a_e12i*b_e3 + a_e13i*b_e2 - a_e23i*b_e1)
         # e12oi
-        out[5*i + 2] = a_e12o*b_ei - a_e12i*b_eo + a_e1oi*b_e2 - a_e2oi*b_e1
+        _store(out, 5*i + 2, a_e12o*b_ei - a_e12i*b_eo + a_e1oi*b_e2 - a_e2oi*b_e1)
         # e13oi
-        out[5*i + 3] = a_e13o*b_ei - a_e13i*b_eo + a_e1oi*b_e3 - a_e3oi*b_e1
+        _store(out, 5*i + 3, a_e13o*b_ei - a_e13i*b_eo + a_e1oi*b_e3 - a_e3oi*b_e1)
         # e23oi
-        out[5*i + 4] = a_e23o*b_ei - a_e23i*b_eo + a_e2oi*b_e3 - a_e3oi*b_e2
+        _store(out, 5*i + 4, a_e23o*b_ei - a_e23i*b_eo + a_e2oi*b_e3 - a_e3oi*b_e2)
 
 
 def sphere_of_batch(a, b, out=None):
@@ -827,18 +857,18 @@ def _on_sphere_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e123o = a[5*i]
-        a_e123i = a[5*i + 1]
-        a_e12oi = a[5*i + 2]
-        a_e13oi = a[5*i + 3]
-        a_e23oi = a[5*i + 4]
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        a_e123o = _load(a, 5*i)
+        a_e123i = _load(a, 5*i + 1)
+        a_e12oi = _load(a, 5*i + 2)
+        a_e13oi = _load(a, 5*i + 3)
+        a_e23oi = _load(a, 5*i + 4)
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e123oi
-        out[i] = a_e123o*b_ei - a_e123i*b_eo + a_e12oi*b_e3 - a_e13oi*b_e2 + a_e23oi*b_e1
+        _store(out, i, a_e123o*b_ei - a_e123i*b_eo + a_e12oi*b_e3 - a_e13oi*b_e2 + a_e23oi*b_e1)
 
 
 @njit(cache=True, error_model="numpy")
@@ -852,13 +882,13 @@ def _on_sphere_one_a(a, b, out):
     a_e13oi = a[3]
     a_e23oi = a[4]
     for i in range(n):
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e123oi
-        out[i] = a_e123o*b_ei - a_e123i*b_eo + a_e12oi*b_e3 - a_e13oi*b_e2 + a_e23oi*b_e1
+        _store(out, i, a_e123o*b_ei - a_e123i*b_eo + a_e12oi*b_e3 - a_e13oi*b_e2 + a_e23oi*b_e1)
 
 
 @njit(cache=True, error_model="numpy")
@@ -872,13 +902,13 @@ def _on_sphere_one_b(a, b, out):
     b_eo = b[3]
     b_ei = b[4]
     for i in range(n):
-        a_e123o = a[5*i]
-        a_e123i = a[5*i + 1]
-        a_e12oi = a[5*i + 2]
-        a_e13oi = a[5*i + 3]
-        a_e23oi = a[5*i + 4]
+        a_e123o = _load(a, 5*i)
+        a_e123i = _load(a, 5*i + 1)
+        a_e12oi = _load(a, 5*i + 2)
+        a_e13oi = _load(a, 5*i + 3)
+        a_e23oi = _load(a, 5*i + 4)
         # e123oi
-        out[i] = a_e123o*b_ei - a_e123i*b_eo + a_e12oi*b_e3 - a_e13oi*b_e2 + a_e23oi*b_e1
+        _store(out, i, a_e123o*b_ei - a_e123i*b_eo + a_e12oi*b_e3 - a_e13oi*b_e2 + a_e23oi*b_e1)
 
 
 def on_sphere_batch(a, b, out=None):
@@ -927,21 +957,21 @@ def _dual_sphere_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e123o = a[5*i]
-        a_e123i = a[5*i + 1]
-        a_e12oi = a[5*i + 2]
-        a_e13oi = a[5*i + 3]
-        a_e23oi = a[5*i + 4]
+        a_e123o = _load(a, 5*i)
+        a_e123i = _load(a, 5*i + 1)
+        a_e12oi = _load(a, 5*i + 2)
+        a_e13oi = _load(a, 5*i + 3)
+        a_e23oi = _load(a, 5*i + 4)
         # e1
-        out[5*i] = a_e23oi
+        _store(out, 5*i, a_e23oi)
         # e2
-        out[5*i + 1] = -a_e13oi
+        _store(out, 5*i + 1, -a_e13oi)
         # e3
-        out[5*i + 2] = a_e12oi
+        _store(out, 5*i + 2, a_e12oi)
         # eo
-        out[5*i + 3] = -a_e123o
+        _store(out, 5*i + 3, -a_e123o)
         # ei
-        out[5*i + 4] = a_e123i
+        _store(out, 5*i + 4, a_e123i)
 
 
 def dual_sphere_batch(a, out=None):
@@ -983,20 +1013,20 @@ def _translator_from_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e1i = a[3*i]
-        a_e2i = a[3*i + 1]
-        a_e3i = a[3*i + 2]
+        a_e1i = _load(a, 3*i)
+        a_e2i = _load(a, 3*i + 1)
+        a_e3i = _load(a, 3*i + 2)
         t0 = 0
         t1 = _exp_c(t0)
         t2 = _exp_s(t0)
         # s
-        out[4*i] = t1
+        _store(out, 4*i, t1)
         # e1i
-        out[4*i + 1] = t2*a_e1i
+        _store(out, 4*i + 1, t2*a_e1i)
         # e2i
-        out[4*i + 2] = t2*a_e2i
+        _store(out, 4*i + 2, t2*a_e2i)
         # e3i
-        out[4*i + 3] = t2*a_e3i
+        _store(out, 4*i + 3, t2*a_e3i)
 
 
 def translator_from_batch(a, out=None):
@@ -1038,20 +1068,20 @@ def _rotor_from_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e12 = a[3*i]
-        a_e13 = a[3*i + 1]
-        a_e23 = a[3*i + 2]
+        a_e12 = _load(a, 3*i)
+        a_e13 = _load(a, 3*i + 1)
+        a_e23 = _load(a, 3*i + 2)
         t0 = -a_e12*a_e12 - a_e13*a_e13 - a_e23*a_e23
         t1 = _exp_c(t0)
         t2 = _exp_s(t0)
         # s
-        out[4*i] = t1
+        _store(out, 4*i, t1)
         # e12
-        out[4*i + 1] = t2*a_e12
+        _store(out, 4*i + 1, t2*a_e12)
         # e13
-        out[4*i + 2] = t2*a_e13
+        _store(out, 4*i + 2, t2*a_e13)
         # e23
-        out[4*i + 3] = t2*a_e23
+        _store(out, 4*i + 3, t2*a_e23)
 
 
 def rotor_from_batch(a, out=None):
@@ -1098,32 +1128,32 @@ def _translate_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e1i = a[4*i + 1]
-        a_e2i = a[4*i + 2]
-        a_e3i = a[4*i + 3]
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        a_s = _load(a, 4*i)
+        a_e1i = _load(a, 4*i + 1)
+        a_e2i = _load(a, 4*i + 2)
+        a_e3i = _load(a, 4*i + 3)
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         c_0 = a_s*a_s
         c_1 = 2*b_eo
         c_2 = a_s*c_1
         c_3 = 2*a_s
         # e1
-        out[5*i] = b_e1*c_0 - a_e1i*c_2
+        _store(out, 5*i, b_e1*c_0 - a_e1i*c_2)
         # e2
-        out[5*i + 1] = b_e2*c_0 - a_e2i*c_2
+        _store(out, 5*i + 1, b_e2*c_0 - a_e2i*c_2)
         # e3
-        out[5*i + 2] = b_e3*c_0 - a_e3i*c_2
+        _store(out, 5*i + 2, b_e3*c_0 - a_e3i*c_2)
         # eo
-        out[5*i + 3] = b_eo*c_0
+        _store(out, 5*i + 3, b_eo*c_0)
         # ei
-        out[5*i + 4] = (
+        _store(out, 5*i + 4, (
             b_ei*c_0 + c_1*a_e1i*a_e1i + c_1*a_e2i*a_e2i + c_1*a_e3i*a_e3i - a_e1i*b_e1*c_3
             - a_e2i*b_e2*c_3 - a_e3i*b_e3*c_3
-        )
+        ))
 
 
 @njit(cache=True, error_model="numpy")
@@ -1153,21 +1183,21 @@ def _translate_one_a(a, b, out):
     m4_eo = 2*(a_e1i*a_e1i + a_e2i*a_e2i + a_e3i*a_e3i)
     m4_ei = q_3
     for i in range(n):
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e1
-        out[5*i] = m0_e1*b_e1 + m0_eo*b_eo
+        _store(out, 5*i, m0_e1*b_e1 + m0_eo*b_eo)
         # e2
-        out[5*i + 1] = m1_e2*b_e2 + m1_eo*b_eo
+        _store(out, 5*i + 1, m1_e2*b_e2 + m1_eo*b_eo)
         # e3
-        out[5*i + 2] = m2_e3*b_e3 + m2_eo*b_eo
+        _store(out, 5*i + 2, m2_e3*b_e3 + m2_eo*b_eo)
         # eo
-        out[5*i + 3] = m3_eo*b_eo
+        _store(out, 5*i + 3, m3_eo*b_eo)
         # ei
-        out[5*i + 4] = m4_e1*b_e1 + m4_e2*b_e2 + m4_e3*b_e3 + m4_eo*b_eo + m4_ei*b_ei
+        _store(out, 5*i + 4, m4_e1*b_e1 + m4_e2*b_e2 + m4_e3*b_e3 + m4_eo*b_eo + m4_ei*b_ei)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1181,27 +1211,27 @@ def _translate_one_b(a, b, out):
     b_eo = b[3]
     b_ei = b[4]
     for i in range(n):
-        a_s = a[4*i]
-        a_e1i = a[4*i + 1]
-        a_e2i = a[4*i + 2]
-        a_e3i = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e1i = _load(a, 4*i + 1)
+        a_e2i = _load(a, 4*i + 2)
+        a_e3i = _load(a, 4*i + 3)
         c_0 = a_s*a_s
         c_1 = 2*b_eo
         c_2 = a_s*c_1
         c_3 = 2*a_s
         # e1
-        out[5*i] = b_e1*c_0 - a_e1i*c_2
+        _store(out, 5*i, b_e1*c_0 - a_e1i*c_2)
         # e2
-        out[5*i + 1] = b_e2*c_0 - a_e2i*c_2
+        _store(out, 5*i + 1, b_e2*c_0 - a_e2i*c_2)
         # e3
-        out[5*i + 2] = b_e3*c_0 - a_e3i*c_2
+        _store(out, 5*i + 2, b_e3*c_0 - a_e3i*c_2)
         # eo
-        out[5*i + 3] = b_eo*c_0
+        _store(out, 5*i + 3, b_eo*c_0)
         # ei
-        out[5*i + 4] = (
+        _store(out, 5*i + 4, (
             b_ei*c_0 + c_1*a_e1i*a_e1i + c_1*a_e2i*a_e2i + c_1*a_e3i*a_e3i - a_e1i*b_e1*c_3
             - a_e2i*b_e2*c_3 - a_e3i*b_e3*c_3
-        )
+        ))
 
 
 def translate_batch(a, b, out=None):
@@ -1272,15 +1302,15 @@ def _rotate_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e13
         q_2 = a_e12*a_e23
@@ -1303,15 +1333,15 @@ def _rotate_each(a, b, out):
         m3_eo = q_9 + q_0 + q_3 + q_5
         m4_ei = q_9 + q_0 + q_3 + q_5
         # e1
-        out[5*i] = m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 5*i, m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e2
-        out[5*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 5*i + 1, m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e3
-        out[5*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 5*i + 2, m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # eo
-        out[5*i + 3] = m3_eo*b_eo
+        _store(out, 5*i + 3, m3_eo*b_eo)
         # ei
-        out[5*i + 4] = m4_ei*b_ei
+        _store(out, 5*i + 4, m4_ei*b_ei)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1346,21 +1376,21 @@ def _rotate_one_a(a, b, out):
     m3_eo = q_9 + q_0 + q_3 + q_5
     m4_ei = q_9 + q_0 + q_3 + q_5
     for i in range(n):
-        b_e1 = b[5*i]
-        b_e2 = b[5*i + 1]
-        b_e3 = b[5*i + 2]
-        b_eo = b[5*i + 3]
-        b_ei = b[5*i + 4]
+        b_e1 = _load(b, 5*i)
+        b_e2 = _load(b, 5*i + 1)
+        b_e3 = _load(b, 5*i + 2)
+        b_eo = _load(b, 5*i + 3)
+        b_ei = _load(b, 5*i + 4)
         # e1
-        out[5*i] = m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 5*i, m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e2
-        out[5*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 5*i + 1, m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e3
-        out[5*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 5*i + 2, m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # eo
-        out[5*i + 3] = m3_eo*b_eo
+        _store(out, 5*i + 3, m3_eo*b_eo)
         # ei
-        out[5*i + 4] = m4_ei*b_ei
+        _store(out, 5*i + 4, m4_ei*b_ei)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1374,10 +1404,10 @@ def _rotate_one_b(a, b, out):
     b_eo = b[3]
     b_ei = b[4]
     for i in range(n):
-        a_s = a[4*i]
-        a_e12 = a[4*i + 1]
-        a_e13 = a[4*i + 2]
-        a_e23 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e12 = _load(a, 4*i + 1)
+        a_e13 = _load(a, 4*i + 2)
+        a_e23 = _load(a, 4*i + 3)
         q_0 = a_e12*a_e12
         q_1 = a_e12*a_e13
         q_2 = a_e12*a_e23
@@ -1400,15 +1430,15 @@ def _rotate_one_b(a, b, out):
         m3_eo = q_9 + q_0 + q_3 + q_5
         m4_ei = q_9 + q_0 + q_3 + q_5
         # e1
-        out[5*i] = m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 5*i, m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e2
-        out[5*i + 1] = m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 5*i + 1, m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e3
-        out[5*i + 2] = m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 5*i + 2, m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # eo
-        out[5*i + 3] = m3_eo*b_eo
+        _store(out, 5*i + 3, m3_eo*b_eo)
         # ei
-        out[5*i + 4] = m4_ei*b_ei
+        _store(out, 5*i + 4, m4_ei*b_ei)
 
 
 def rotate_batch(a, b, out=None):
@@ -1464,40 +1494,40 @@ def ray_hits(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _ray_hits_each(a, b, out):
-    """ray_hits of row i of every argument, for i < n, last row first."""
+    """ray_hits of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_e1 = a[5*i]
-        a_e2 = a[5*i + 1]
-        a_e3 = a[5*i + 2]
-        a_eo = a[5*i + 3]
-        a_ei = a[5*i + 4]
-        b_e123o = b[5*i]
-        b_e123i = b[5*i + 1]
-        b_e12oi = b[5*i + 2]
-        b_e13oi = b[5*i + 3]
-        b_e23oi = b[5*i + 4]
+    for i in range(n):
+        a_e1 = _load(a, 5*i)
+        a_e2 = _load(a, 5*i + 1)
+        a_e3 = _load(a, 5*i + 2)
+        a_eo = _load(a, 5*i + 3)
+        a_ei = _load(a, 5*i + 4)
+        b_e123o = _load(b, 5*i)
+        b_e123i = _load(b, 5*i + 1)
+        b_e12oi = _load(b, 5*i + 2)
+        b_e13oi = _load(b, 5*i + 3)
+        b_e23oi = _load(b, 5*i + 4)
         # e123
-        out[10*i] = a_eo*b_e123i + a_ei*b_e123o
+        _store(out, 10*i, a_eo*b_e123i + a_ei*b_e123o)
         # e12o
-        out[10*i + 1] = a_e3*b_e123o + a_eo*b_e12oi
+        _store(out, 10*i + 1, a_e3*b_e123o + a_eo*b_e12oi)
         # e12i
-        out[10*i + 2] = a_e3*b_e123i - a_ei*b_e12oi
+        _store(out, 10*i + 2, a_e3*b_e123i - a_ei*b_e12oi)
         # e13o
-        out[10*i + 3] = -a_e2*b_e123o + a_eo*b_e13oi
+        _store(out, 10*i + 3, -a_e2*b_e123o + a_eo*b_e13oi)
         # e13i
-        out[10*i + 4] = -a_e2*b_e123i - a_ei*b_e13oi
+        _store(out, 10*i + 4, -a_e2*b_e123i - a_ei*b_e13oi)
         # e1oi
-        out[10*i + 5] = -a_e2*b_e12oi - a_e3*b_e13oi
+        _store(out, 10*i + 5, -a_e2*b_e12oi - a_e3*b_e13oi)
         # e23o
-        out[10*i + 6] = a_e1*b_e123o + a_eo*b_e23oi
+        _store(out, 10*i + 6, a_e1*b_e123o + a_eo*b_e23oi)
         # e23i
-        out[10*i + 7] = a_e1*b_e123i - a_ei*b_e23oi
+        _store(out, 10*i + 7, a_e1*b_e123i - a_ei*b_e23oi)
         # e2oi
-        out[10*i + 8] = a_e1*b_e12oi - a_e3*b_e23oi
+        _store(out, 10*i + 8, a_e1*b_e12oi - a_e3*b_e23oi)
         # e3oi
-        out[10*i + 9] = a_e1*b_e13oi + a_e2*b_e23oi
+        _store(out, 10*i + 9, a_e1*b_e13oi + a_e2*b_e23oi)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1511,31 +1541,31 @@ def _ray_hits_one_a(a, b, out):
     a_eo = a[3]
     a_ei = a[4]
     for i in range(n):
-        b_e123o = b[5*i]
-        b_e123i = b[5*i + 1]
-        b_e12oi = b[5*i + 2]
-        b_e13oi = b[5*i + 3]
-        b_e23oi = b[5*i + 4]
+        b_e123o = _load(b, 5*i)
+        b_e123i = _load(b, 5*i + 1)
+        b_e12oi = _load(b, 5*i + 2)
+        b_e13oi = _load(b, 5*i + 3)
+        b_e23oi = _load(b, 5*i + 4)
         # e123
-        out[10*i] = a_eo*b_e123i + a_ei*b_e123o
+        _store(out, 10*i, a_eo*b_e123i + a_ei*b_e123o)
         # e12o
-        out[10*i + 1] = a_e3*b_e123o + a_eo*b_e12oi
+        _store(out, 10*i + 1, a_e3*b_e123o + a_eo*b_e12oi)
         # e12i
-        out[10*i + 2] = a_e3*b_e123i - a_ei*b_e12oi
+        _store(out, 10*i + 2, a_e3*b_e123i - a_ei*b_e12oi)
         # e13o
-        out[10*i + 3] = -a_e2*b_e123o + a_eo*b_e13oi
+        _store(out, 10*i + 3, -a_e2*b_e123o + a_eo*b_e13oi)
         # e13i
-        out[10*i + 4] = -a_e2*b_e123i - a_ei*b_e13oi
+        _store(out, 10*i + 4, -a_e2*b_e123i - a_ei*b_e13oi)
         # e1oi
-        out[10*i + 5] = -a_e2*b_e12oi - a_e3*b_e13oi
+        _store(out, 10*i + 5, -a_e2*b_e12oi - a_e3*b_e13oi)
         # e23o
-        out[10*i + 6] = a_e1*b_e123o + a_eo*b_e23oi
+        _store(out, 10*i + 6, a_e1*b_e123o + a_eo*b_e23oi)
         # e23i
-        out[10*i + 7] = a_e1*b_e123i - a_ei*b_e23oi
+        _store(out, 10*i + 7, a_e1*b_e123i - a_ei*b_e23oi)
         # e2oi
-        out[10*i + 8] = a_e1*b_e12oi - a_e3*b_e23oi
+        _store(out, 10*i + 8, a_e1*b_e12oi - a_e3*b_e23oi)
         # e3oi
-        out[10*i + 9] = a_e1*b_e13oi + a_e2*b_e23oi
+        _store(out, 10*i + 9, a_e1*b_e13oi + a_e2*b_e23oi)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1549,31 +1579,31 @@ def _ray_hits_one_b(a, b, out):
     b_e13oi = b[3]
     b_e23oi = b[4]
     for i in range(n):
-        a_e1 = a[5*i]
-        a_e2 = a[5*i + 1]
-        a_e3 = a[5*i + 2]
-        a_eo = a[5*i + 3]
-        a_ei = a[5*i + 4]
+        a_e1 = _load(a, 5*i)
+        a_e2 = _load(a, 5*i + 1)
+        a_e3 = _load(a, 5*i + 2)
+        a_eo = _load(a, 5*i + 3)
+        a_ei = _load(a, 5*i + 4)
         # e123
-        out[10*i] = a_eo*b_e123i + a_ei*b_e123o
+        _store(out, 10*i, a_eo*b_e123i + a_ei*b_e123o)
         # e12o
-        out[10*i + 1] = a_e3*b_e123o + a_eo*b_e12oi
+        _store(out, 10*i + 1, a_e3*b_e123o + a_eo*b_e12oi)
         # e12i
-        out[10*i + 2] = a_e3*b_e123i - a_ei*b_e12oi
+        _store(out, 10*i + 2, a_e3*b_e123i - a_ei*b_e12oi)
         # e13o
-        out[10*i + 3] = -a_e2*b_e123o + a_eo*b_e13oi
+        _store(out, 10*i + 3, -a_e2*b_e123o + a_eo*b_e13oi)
         # e13i
-        out[10*i + 4] = -a_e2*b_e123i - a_ei*b_e13oi
+        _store(out, 10*i + 4, -a_e2*b_e123i - a_ei*b_e13oi)
         # e1oi
-        out[10*i + 5] = -a_e2*b_e12oi - a_e3*b_e13oi
+        _store(out, 10*i + 5, -a_e2*b_e12oi - a_e3*b_e13oi)
         # e23o
-        out[10*i + 6] = a_e1*b_e123o + a_eo*b_e23oi
+        _store(out, 10*i + 6, a_e1*b_e123o + a_eo*b_e23oi)
         # e23i
-        out[10*i + 7] = a_e1*b_e123i - a_ei*b_e23oi
+        _store(out, 10*i + 7, a_e1*b_e123i - a_ei*b_e23oi)
         # e2oi
-        out[10*i + 8] = a_e1*b_e12oi - a_e3*b_e23oi
+        _store(out, 10*i + 8, a_e1*b_e12oi - a_e3*b_e23oi)
         # e3oi
-        out[10*i + 9] = a_e1*b_e13oi + a_e2*b_e23oi
+        _store(out, 10*i + 9, a_e1*b_e13oi + a_e2*b_e23oi)
 
 
 def ray_hits_batch(a, b, out=None):

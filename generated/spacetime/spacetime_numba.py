@@ -11,8 +11,9 @@ that is used for every row. It returns an (N, k) array of the result type, float
 argument is float32 and float64 otherwise; when `out` is given (C-contiguous, of that shape and
 dtype) it is filled and returned, and nothing is allocated. Unary kernels have no `b`. For a
 sandwich kernel with a single `a` (one versor, many elements), the matrix of `a` is computed once
-and each row costs only that matrix applied to it. Loops over long rows run from the last row
-to the first (faster for them on arrays that share their offset in a memory page, as numpy's do).
+and each row costs only that matrix applied to it. The loops read and write rows through
+`_load` and `_store`, element access that tells LLVM the address is in range, so that it can
+vectorize loops over long rows too.
 
 Types (components in order):
     event: e0, e1, e2, e3
@@ -26,7 +27,8 @@ Types (components in order):
 import math
 
 import numpy as np
-from numba import njit
+from numba import njit, types
+from numba.extending import intrinsic
 
 __all__ = [
     "boost_from_rapidity",
@@ -95,6 +97,34 @@ KERNELS = {
 _FLOATS = (np.dtype(np.float64), np.dtype(np.float32))
 _F64 = _FLOATS[0]
 _ARRAY = np.ndarray
+
+
+@intrinsic
+def _load(typingctx, array, index):
+    """`array[index]` of a 1-D array, for an index known to be in range (no wraparound): the
+    address is an `inbounds` GEP, which lets LLVM vectorize loops of many loads and stores."""
+    if isinstance(array, types.Array) and array.ndim == 1 and isinstance(index, types.Integer):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            return builder.load(builder.gep(data, [args[1]], inbounds=True),
+                                align=None if sig.args[0].aligned else 1)
+        return array.dtype(array, index), codegen
+    return None
+
+
+@intrinsic
+def _store(typingctx, array, index, value):
+    """`array[index] = value` of a 1-D array, likewise; `value` is cast to the array's dtype."""
+    if (isinstance(array, types.Array) and array.ndim == 1 and array.mutable
+            and isinstance(index, types.Integer) and isinstance(value, types.Number)):
+        def codegen(context, builder, sig, args):
+            data = context.make_array(sig.args[0])(context, builder, args[0]).data
+            item = context.cast(builder, args[2], sig.args[2], sig.args[0].dtype)
+            builder.store(item, builder.gep(data, [args[1]], inbounds=True),
+                          align=None if sig.args[0].aligned else 1)
+            return context.get_dummy_value()
+        return types.void(array, index, value), codegen
+    return None
 
 
 def _describe(x):
@@ -208,20 +238,20 @@ def _boost_from_rapidity_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e01 = a[3*i]
-        a_e02 = a[3*i + 1]
-        a_e03 = a[3*i + 2]
+        a_e01 = _load(a, 3*i)
+        a_e02 = _load(a, 3*i + 1)
+        a_e03 = _load(a, 3*i + 2)
         t0 = a_e01*a_e01 + a_e02*a_e02 + a_e03*a_e03
         t1 = _exp_c(t0)
         t2 = _exp_s(t0)
         # s
-        out[4*i] = t1
+        _store(out, 4*i, t1)
         # e01
-        out[4*i + 1] = t2*a_e01
+        _store(out, 4*i + 1, t2*a_e01)
         # e02
-        out[4*i + 2] = t2*a_e02
+        _store(out, 4*i + 2, t2*a_e02)
         # e03
-        out[4*i + 3] = t2*a_e03
+        _store(out, 4*i + 3, t2*a_e03)
 
 
 def boost_from_rapidity_batch(a, out=None):
@@ -287,14 +317,14 @@ def _boost_event_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e02 = a[4*i + 2]
-        a_e03 = a[4*i + 3]
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e02 = _load(a, 4*i + 2)
+        a_e03 = _load(a, 4*i + 3)
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         q_0 = a_e01*a_e01
         q_1 = a_e01*a_e02
         q_2 = a_e01*a_e03
@@ -322,13 +352,13 @@ def _boost_event_each(a, b, out):
         m3_e2 = 2*q_4
         m3_e3 = q_9 - q_0 - q_3 + q_5
         # e0
-        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 4*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e1
-        out[4*i + 1] = m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 4*i + 1, m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e2
-        out[4*i + 2] = m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 4*i + 2, m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # e3
-        out[4*i + 3] = m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
+        _store(out, 4*i + 3, m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -368,18 +398,18 @@ def _boost_event_one_a(a, b, out):
     m3_e2 = 2*q_4
     m3_e3 = q_9 - q_0 - q_3 + q_5
     for i in range(n):
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e0
-        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 4*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e1
-        out[4*i + 1] = m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 4*i + 1, m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e2
-        out[4*i + 2] = m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 4*i + 2, m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # e3
-        out[4*i + 3] = m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
+        _store(out, 4*i + 3, m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -392,10 +422,10 @@ def _boost_event_one_b(a, b, out):
     b_e2 = b[2]
     b_e3 = b[3]
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e02 = a[4*i + 2]
-        a_e03 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e02 = _load(a, 4*i + 2)
+        a_e03 = _load(a, 4*i + 3)
         q_0 = a_e01*a_e01
         q_1 = a_e01*a_e02
         q_2 = a_e01*a_e03
@@ -423,13 +453,13 @@ def _boost_event_one_b(a, b, out):
         m3_e2 = 2*q_4
         m3_e3 = q_9 - q_0 - q_3 + q_5
         # e0
-        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 4*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e1
-        out[4*i + 1] = m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 4*i + 1, m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e2
-        out[4*i + 2] = m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 4*i + 2, m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # e3
-        out[4*i + 3] = m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
+        _store(out, 4*i + 3, m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3)
 
 
 def boost_event_batch(a, b, out=None):
@@ -525,18 +555,18 @@ def _transform_event_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         q_0 = a_e01*a_e01
         q_1 = a_e01*a_e0123
         q_2 = a_e01*a_e02
@@ -586,13 +616,13 @@ def _transform_event_each(a, b, out):
         m3_e2 = 2*(q_30 - q_1 + q_9 - q_18)
         m3_e3 = q_31 - q_0 - q_8 + q_13 + q_17 - q_21 - q_24 + q_6
         # e0
-        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 4*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e1
-        out[4*i + 1] = m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 4*i + 1, m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e2
-        out[4*i + 2] = m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 4*i + 2, m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # e3
-        out[4*i + 3] = m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
+        _store(out, 4*i + 3, m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -658,18 +688,18 @@ def _transform_event_one_a(a, b, out):
     m3_e2 = 2*(q_30 - q_1 + q_9 - q_18)
     m3_e3 = q_31 - q_0 - q_8 + q_13 + q_17 - q_21 - q_24 + q_6
     for i in range(n):
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e0
-        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 4*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e1
-        out[4*i + 1] = m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 4*i + 1, m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e2
-        out[4*i + 2] = m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 4*i + 2, m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # e3
-        out[4*i + 3] = m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
+        _store(out, 4*i + 3, m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -682,14 +712,14 @@ def _transform_event_one_b(a, b, out):
     b_e2 = b[2]
     b_e3 = b[3]
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         q_0 = a_e01*a_e01
         q_1 = a_e01*a_e0123
         q_2 = a_e01*a_e02
@@ -739,13 +769,13 @@ def _transform_event_one_b(a, b, out):
         m3_e2 = 2*(q_30 - q_1 + q_9 - q_18)
         m3_e3 = q_31 - q_0 - q_8 + q_13 + q_17 - q_21 - q_24 + q_6
         # e0
-        out[4*i] = m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3
+        _store(out, 4*i, m0_e0*b_e0 + m0_e1*b_e1 + m0_e2*b_e2 + m0_e3*b_e3)
         # e1
-        out[4*i + 1] = m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3
+        _store(out, 4*i + 1, m1_e0*b_e0 + m1_e1*b_e1 + m1_e2*b_e2 + m1_e3*b_e3)
         # e2
-        out[4*i + 2] = m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3
+        _store(out, 4*i + 2, m2_e0*b_e0 + m2_e1*b_e1 + m2_e2*b_e2 + m2_e3*b_e3)
         # e3
-        out[4*i + 3] = m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3
+        _store(out, 4*i + 3, m3_e0*b_e0 + m3_e1*b_e1 + m3_e2*b_e2 + m3_e3*b_e3)
 
 
 def transform_event_batch(a, b, out=None):
@@ -801,30 +831,30 @@ def _compose_boosts_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e02 = a[4*i + 2]
-        a_e03 = a[4*i + 3]
-        b_s = b[4*i]
-        b_e01 = b[4*i + 1]
-        b_e02 = b[4*i + 2]
-        b_e03 = b[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e02 = _load(a, 4*i + 2)
+        a_e03 = _load(a, 4*i + 3)
+        b_s = _load(b, 4*i)
+        b_e01 = _load(b, 4*i + 1)
+        b_e02 = _load(b, 4*i + 2)
+        b_e03 = _load(b, 4*i + 3)
         # s
-        out[8*i] = a_s*b_s + a_e01*b_e01 + a_e02*b_e02 + a_e03*b_e03
+        _store(out, 8*i, a_s*b_s + a_e01*b_e01 + a_e02*b_e02 + a_e03*b_e03)
         # e01
-        out[8*i + 1] = a_s*b_e01 + a_e01*b_s
+        _store(out, 8*i + 1, a_s*b_e01 + a_e01*b_s)
         # e02
-        out[8*i + 2] = a_s*b_e02 + a_e02*b_s
+        _store(out, 8*i + 2, a_s*b_e02 + a_e02*b_s)
         # e03
-        out[8*i + 3] = a_s*b_e03 + a_e03*b_s
+        _store(out, 8*i + 3, a_s*b_e03 + a_e03*b_s)
         # e12
-        out[8*i + 4] = -a_e01*b_e02 + a_e02*b_e01
+        _store(out, 8*i + 4, -a_e01*b_e02 + a_e02*b_e01)
         # e13
-        out[8*i + 5] = -a_e01*b_e03 + a_e03*b_e01
+        _store(out, 8*i + 5, -a_e01*b_e03 + a_e03*b_e01)
         # e23
-        out[8*i + 6] = -a_e02*b_e03 + a_e03*b_e02
+        _store(out, 8*i + 6, -a_e02*b_e03 + a_e03*b_e02)
         # e0123
-        out[8*i + 7] = 0
+        _store(out, 8*i + 7, 0)
 
 
 @njit(cache=True, error_model="numpy")
@@ -837,26 +867,26 @@ def _compose_boosts_one_a(a, b, out):
     a_e02 = a[2]
     a_e03 = a[3]
     for i in range(n):
-        b_s = b[4*i]
-        b_e01 = b[4*i + 1]
-        b_e02 = b[4*i + 2]
-        b_e03 = b[4*i + 3]
+        b_s = _load(b, 4*i)
+        b_e01 = _load(b, 4*i + 1)
+        b_e02 = _load(b, 4*i + 2)
+        b_e03 = _load(b, 4*i + 3)
         # s
-        out[8*i] = a_s*b_s + a_e01*b_e01 + a_e02*b_e02 + a_e03*b_e03
+        _store(out, 8*i, a_s*b_s + a_e01*b_e01 + a_e02*b_e02 + a_e03*b_e03)
         # e01
-        out[8*i + 1] = a_s*b_e01 + a_e01*b_s
+        _store(out, 8*i + 1, a_s*b_e01 + a_e01*b_s)
         # e02
-        out[8*i + 2] = a_s*b_e02 + a_e02*b_s
+        _store(out, 8*i + 2, a_s*b_e02 + a_e02*b_s)
         # e03
-        out[8*i + 3] = a_s*b_e03 + a_e03*b_s
+        _store(out, 8*i + 3, a_s*b_e03 + a_e03*b_s)
         # e12
-        out[8*i + 4] = -a_e01*b_e02 + a_e02*b_e01
+        _store(out, 8*i + 4, -a_e01*b_e02 + a_e02*b_e01)
         # e13
-        out[8*i + 5] = -a_e01*b_e03 + a_e03*b_e01
+        _store(out, 8*i + 5, -a_e01*b_e03 + a_e03*b_e01)
         # e23
-        out[8*i + 6] = -a_e02*b_e03 + a_e03*b_e02
+        _store(out, 8*i + 6, -a_e02*b_e03 + a_e03*b_e02)
         # e0123
-        out[8*i + 7] = 0
+        _store(out, 8*i + 7, 0)
 
 
 @njit(cache=True, error_model="numpy")
@@ -869,26 +899,26 @@ def _compose_boosts_one_b(a, b, out):
     b_e02 = b[2]
     b_e03 = b[3]
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e02 = a[4*i + 2]
-        a_e03 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e02 = _load(a, 4*i + 2)
+        a_e03 = _load(a, 4*i + 3)
         # s
-        out[8*i] = a_s*b_s + a_e01*b_e01 + a_e02*b_e02 + a_e03*b_e03
+        _store(out, 8*i, a_s*b_s + a_e01*b_e01 + a_e02*b_e02 + a_e03*b_e03)
         # e01
-        out[8*i + 1] = a_s*b_e01 + a_e01*b_s
+        _store(out, 8*i + 1, a_s*b_e01 + a_e01*b_s)
         # e02
-        out[8*i + 2] = a_s*b_e02 + a_e02*b_s
+        _store(out, 8*i + 2, a_s*b_e02 + a_e02*b_s)
         # e03
-        out[8*i + 3] = a_s*b_e03 + a_e03*b_s
+        _store(out, 8*i + 3, a_s*b_e03 + a_e03*b_s)
         # e12
-        out[8*i + 4] = -a_e01*b_e02 + a_e02*b_e01
+        _store(out, 8*i + 4, -a_e01*b_e02 + a_e02*b_e01)
         # e13
-        out[8*i + 5] = -a_e01*b_e03 + a_e03*b_e01
+        _store(out, 8*i + 5, -a_e01*b_e03 + a_e03*b_e01)
         # e23
-        out[8*i + 6] = -a_e02*b_e03 + a_e03*b_e02
+        _store(out, 8*i + 6, -a_e02*b_e03 + a_e03*b_e02)
         # e0123
-        out[8*i + 7] = 0
+        _store(out, 8*i + 7, 0)
 
 
 def compose_boosts_batch(a, b, out=None):
@@ -948,66 +978,66 @@ def compose(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _compose_each(a, b, out):
-    """compose of row i of every argument, for i < n, last row first."""
+    """compose of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
-        b_s = b[8*i]
-        b_e01 = b[8*i + 1]
-        b_e02 = b[8*i + 2]
-        b_e03 = b[8*i + 3]
-        b_e12 = b[8*i + 4]
-        b_e13 = b[8*i + 5]
-        b_e23 = b[8*i + 6]
-        b_e0123 = b[8*i + 7]
+    for i in range(n):
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
+        b_s = _load(b, 8*i)
+        b_e01 = _load(b, 8*i + 1)
+        b_e02 = _load(b, 8*i + 2)
+        b_e03 = _load(b, 8*i + 3)
+        b_e12 = _load(b, 8*i + 4)
+        b_e13 = _load(b, 8*i + 5)
+        b_e23 = _load(b, 8*i + 6)
+        b_e0123 = _load(b, 8*i + 7)
         # s
-        out[8*i] = (
+        _store(out, 8*i, (
             a_s*b_s + a_e01*b_e01 + a_e02*b_e02 + a_e03*b_e03 - a_e12*b_e12 - a_e13*b_e13
             - a_e23*b_e23 - a_e0123*b_e0123
-        )
+        ))
         # e01
-        out[8*i + 1] = (
+        _store(out, 8*i + 1, (
             a_s*b_e01 + a_e01*b_s + a_e02*b_e12 + a_e03*b_e13 - a_e12*b_e02 - a_e13*b_e03
             - a_e23*b_e0123 - a_e0123*b_e23
-        )
+        ))
         # e02
-        out[8*i + 2] = (
+        _store(out, 8*i + 2, (
             a_s*b_e02 - a_e01*b_e12 + a_e02*b_s + a_e03*b_e23 + a_e12*b_e01 + a_e13*b_e0123
             - a_e23*b_e03 + a_e0123*b_e13
-        )
+        ))
         # e03
-        out[8*i + 3] = (
+        _store(out, 8*i + 3, (
             a_s*b_e03 - a_e01*b_e13 - a_e02*b_e23 + a_e03*b_s - a_e12*b_e0123 + a_e13*b_e01
             + a_e23*b_e02 - a_e0123*b_e12
-        )
+        ))
         # e12
-        out[8*i + 4] = (
+        _store(out, 8*i + 4, (
             a_s*b_e12 - a_e01*b_e02 + a_e02*b_e01 + a_e03*b_e0123 + a_e12*b_s + a_e13*b_e23
             - a_e23*b_e13 + a_e0123*b_e03
-        )
+        ))
         # e13
-        out[8*i + 5] = (
+        _store(out, 8*i + 5, (
             a_s*b_e13 - a_e01*b_e03 - a_e02*b_e0123 + a_e03*b_e01 - a_e12*b_e23 + a_e13*b_s
             + a_e23*b_e12 - a_e0123*b_e02
-        )
+        ))
         # e23
-        out[8*i + 6] = (
+        _store(out, 8*i + 6, (
             a_s*b_e23 + a_e01*b_e0123 - a_e02*b_e03 + a_e03*b_e02 + a_e12*b_e13 - a_e13*b_e12
             + a_e23*b_s + a_e0123*b_e01
-        )
+        ))
         # e0123
-        out[8*i + 7] = (
+        _store(out, 8*i + 7, (
             a_s*b_e0123 + a_e01*b_e23 - a_e02*b_e13 + a_e03*b_e12 + a_e12*b_e03 - a_e13*b_e02
             + a_e23*b_e01 + a_e0123*b_s
-        )
+        ))
 
 
 @njit(cache=True, error_model="numpy")
@@ -1024,54 +1054,54 @@ def _compose_one_a(a, b, out):
     a_e23 = a[6]
     a_e0123 = a[7]
     for i in range(n):
-        b_s = b[8*i]
-        b_e01 = b[8*i + 1]
-        b_e02 = b[8*i + 2]
-        b_e03 = b[8*i + 3]
-        b_e12 = b[8*i + 4]
-        b_e13 = b[8*i + 5]
-        b_e23 = b[8*i + 6]
-        b_e0123 = b[8*i + 7]
+        b_s = _load(b, 8*i)
+        b_e01 = _load(b, 8*i + 1)
+        b_e02 = _load(b, 8*i + 2)
+        b_e03 = _load(b, 8*i + 3)
+        b_e12 = _load(b, 8*i + 4)
+        b_e13 = _load(b, 8*i + 5)
+        b_e23 = _load(b, 8*i + 6)
+        b_e0123 = _load(b, 8*i + 7)
         # s
-        out[8*i] = (
+        _store(out, 8*i, (
             a_s*b_s + a_e01*b_e01 + a_e02*b_e02 + a_e03*b_e03 - a_e12*b_e12 - a_e13*b_e13
             - a_e23*b_e23 - a_e0123*b_e0123
-        )
+        ))
         # e01
-        out[8*i + 1] = (
+        _store(out, 8*i + 1, (
             a_s*b_e01 + a_e01*b_s + a_e02*b_e12 + a_e03*b_e13 - a_e12*b_e02 - a_e13*b_e03
             - a_e23*b_e0123 - a_e0123*b_e23
-        )
+        ))
         # e02
-        out[8*i + 2] = (
+        _store(out, 8*i + 2, (
             a_s*b_e02 - a_e01*b_e12 + a_e02*b_s + a_e03*b_e23 + a_e12*b_e01 + a_e13*b_e0123
             - a_e23*b_e03 + a_e0123*b_e13
-        )
+        ))
         # e03
-        out[8*i + 3] = (
+        _store(out, 8*i + 3, (
             a_s*b_e03 - a_e01*b_e13 - a_e02*b_e23 + a_e03*b_s - a_e12*b_e0123 + a_e13*b_e01
             + a_e23*b_e02 - a_e0123*b_e12
-        )
+        ))
         # e12
-        out[8*i + 4] = (
+        _store(out, 8*i + 4, (
             a_s*b_e12 - a_e01*b_e02 + a_e02*b_e01 + a_e03*b_e0123 + a_e12*b_s + a_e13*b_e23
             - a_e23*b_e13 + a_e0123*b_e03
-        )
+        ))
         # e13
-        out[8*i + 5] = (
+        _store(out, 8*i + 5, (
             a_s*b_e13 - a_e01*b_e03 - a_e02*b_e0123 + a_e03*b_e01 - a_e12*b_e23 + a_e13*b_s
             + a_e23*b_e12 - a_e0123*b_e02
-        )
+        ))
         # e23
-        out[8*i + 6] = (
+        _store(out, 8*i + 6, (
             a_s*b_e23 + a_e01*b_e0123 - a_e02*b_e03 + a_e03*b_e02 + a_e12*b_e13 - a_e13*b_e12
             + a_e23*b_s + a_e0123*b_e01
-        )
+        ))
         # e0123
-        out[8*i + 7] = (
+        _store(out, 8*i + 7, (
             a_s*b_e0123 + a_e01*b_e23 - a_e02*b_e13 + a_e03*b_e12 + a_e12*b_e03 - a_e13*b_e02
             + a_e23*b_e01 + a_e0123*b_s
-        )
+        ))
 
 
 @njit(cache=True, error_model="numpy")
@@ -1088,54 +1118,54 @@ def _compose_one_b(a, b, out):
     b_e23 = b[6]
     b_e0123 = b[7]
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         # s
-        out[8*i] = (
+        _store(out, 8*i, (
             a_s*b_s + a_e01*b_e01 + a_e02*b_e02 + a_e03*b_e03 - a_e12*b_e12 - a_e13*b_e13
             - a_e23*b_e23 - a_e0123*b_e0123
-        )
+        ))
         # e01
-        out[8*i + 1] = (
+        _store(out, 8*i + 1, (
             a_s*b_e01 + a_e01*b_s + a_e02*b_e12 + a_e03*b_e13 - a_e12*b_e02 - a_e13*b_e03
             - a_e23*b_e0123 - a_e0123*b_e23
-        )
+        ))
         # e02
-        out[8*i + 2] = (
+        _store(out, 8*i + 2, (
             a_s*b_e02 - a_e01*b_e12 + a_e02*b_s + a_e03*b_e23 + a_e12*b_e01 + a_e13*b_e0123
             - a_e23*b_e03 + a_e0123*b_e13
-        )
+        ))
         # e03
-        out[8*i + 3] = (
+        _store(out, 8*i + 3, (
             a_s*b_e03 - a_e01*b_e13 - a_e02*b_e23 + a_e03*b_s - a_e12*b_e0123 + a_e13*b_e01
             + a_e23*b_e02 - a_e0123*b_e12
-        )
+        ))
         # e12
-        out[8*i + 4] = (
+        _store(out, 8*i + 4, (
             a_s*b_e12 - a_e01*b_e02 + a_e02*b_e01 + a_e03*b_e0123 + a_e12*b_s + a_e13*b_e23
             - a_e23*b_e13 + a_e0123*b_e03
-        )
+        ))
         # e13
-        out[8*i + 5] = (
+        _store(out, 8*i + 5, (
             a_s*b_e13 - a_e01*b_e03 - a_e02*b_e0123 + a_e03*b_e01 - a_e12*b_e23 + a_e13*b_s
             + a_e23*b_e12 - a_e0123*b_e02
-        )
+        ))
         # e23
-        out[8*i + 6] = (
+        _store(out, 8*i + 6, (
             a_s*b_e23 + a_e01*b_e0123 - a_e02*b_e03 + a_e03*b_e02 + a_e12*b_e13 - a_e13*b_e12
             + a_e23*b_s + a_e0123*b_e01
-        )
+        ))
         # e0123
-        out[8*i + 7] = (
+        _store(out, 8*i + 7, (
             a_s*b_e0123 + a_e01*b_e23 - a_e02*b_e13 + a_e03*b_e12 + a_e12*b_e03 - a_e13*b_e02
             + a_e23*b_e01 + a_e0123*b_s
-        )
+        ))
 
 
 def compose_batch(a, b, out=None):
@@ -1184,20 +1214,20 @@ def _invert_boost_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[4*i]
-        a_e01 = a[4*i + 1]
-        a_e02 = a[4*i + 2]
-        a_e03 = a[4*i + 3]
+        a_s = _load(a, 4*i)
+        a_e01 = _load(a, 4*i + 1)
+        a_e02 = _load(a, 4*i + 2)
+        a_e03 = _load(a, 4*i + 3)
         t0 = a_s*a_s - a_e01*a_e01 - a_e02*a_e02 - a_e03*a_e03
         t1 = 1/t0
         # s
-        out[4*i] = t1*a_s
+        _store(out, 4*i, t1*a_s)
         # e01
-        out[4*i + 1] = -t1*a_e01
+        _store(out, 4*i + 1, -t1*a_e01)
         # e02
-        out[4*i + 2] = -t1*a_e02
+        _store(out, 4*i + 2, -t1*a_e02)
         # e03
-        out[4*i + 3] = -t1*a_e03
+        _store(out, 4*i + 3, -t1*a_e03)
 
 
 def invert_boost_batch(a, out=None):
@@ -1231,16 +1261,16 @@ def _interval_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # s
-        out[i] = a_e0*b_e0 - a_e1*b_e1 - a_e2*b_e2 - a_e3*b_e3
+        _store(out, i, a_e0*b_e0 - a_e1*b_e1 - a_e2*b_e2 - a_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1253,12 +1283,12 @@ def _interval_one_a(a, b, out):
     a_e2 = a[2]
     a_e3 = a[3]
     for i in range(n):
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # s
-        out[i] = a_e0*b_e0 - a_e1*b_e1 - a_e2*b_e2 - a_e3*b_e3
+        _store(out, i, a_e0*b_e0 - a_e1*b_e1 - a_e2*b_e2 - a_e3*b_e3)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1271,12 +1301,12 @@ def _interval_one_b(a, b, out):
     b_e2 = b[2]
     b_e3 = b[3]
     for i in range(n):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
         # s
-        out[i] = a_e0*b_e0 - a_e1*b_e1 - a_e2*b_e2 - a_e3*b_e3
+        _store(out, i, a_e0*b_e0 - a_e1*b_e1 - a_e2*b_e2 - a_e3*b_e3)
 
 
 def interval_batch(a, b, out=None):
@@ -1328,26 +1358,26 @@ def _track_plane_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e01
-        out[6*i] = a_e0*b_e1 - a_e1*b_e0
+        _store(out, 6*i, a_e0*b_e1 - a_e1*b_e0)
         # e02
-        out[6*i + 1] = a_e0*b_e2 - a_e2*b_e0
+        _store(out, 6*i + 1, a_e0*b_e2 - a_e2*b_e0)
         # e03
-        out[6*i + 2] = a_e0*b_e3 - a_e3*b_e0
+        _store(out, 6*i + 2, a_e0*b_e3 - a_e3*b_e0)
         # e12
-        out[6*i + 3] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 6*i + 3, a_e1*b_e2 - a_e2*b_e1)
         # e13
-        out[6*i + 4] = a_e1*b_e3 - a_e3*b_e1
+        _store(out, 6*i + 4, a_e1*b_e3 - a_e3*b_e1)
         # e23
-        out[6*i + 5] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 6*i + 5, a_e2*b_e3 - a_e3*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1360,22 +1390,22 @@ def _track_plane_one_a(a, b, out):
     a_e2 = a[2]
     a_e3 = a[3]
     for i in range(n):
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e01
-        out[6*i] = a_e0*b_e1 - a_e1*b_e0
+        _store(out, 6*i, a_e0*b_e1 - a_e1*b_e0)
         # e02
-        out[6*i + 1] = a_e0*b_e2 - a_e2*b_e0
+        _store(out, 6*i + 1, a_e0*b_e2 - a_e2*b_e0)
         # e03
-        out[6*i + 2] = a_e0*b_e3 - a_e3*b_e0
+        _store(out, 6*i + 2, a_e0*b_e3 - a_e3*b_e0)
         # e12
-        out[6*i + 3] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 6*i + 3, a_e1*b_e2 - a_e2*b_e1)
         # e13
-        out[6*i + 4] = a_e1*b_e3 - a_e3*b_e1
+        _store(out, 6*i + 4, a_e1*b_e3 - a_e3*b_e1)
         # e23
-        out[6*i + 5] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 6*i + 5, a_e2*b_e3 - a_e3*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1388,22 +1418,22 @@ def _track_plane_one_b(a, b, out):
     b_e2 = b[2]
     b_e3 = b[3]
     for i in range(n):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
         # e01
-        out[6*i] = a_e0*b_e1 - a_e1*b_e0
+        _store(out, 6*i, a_e0*b_e1 - a_e1*b_e0)
         # e02
-        out[6*i + 1] = a_e0*b_e2 - a_e2*b_e0
+        _store(out, 6*i + 1, a_e0*b_e2 - a_e2*b_e0)
         # e03
-        out[6*i + 2] = a_e0*b_e3 - a_e3*b_e0
+        _store(out, 6*i + 2, a_e0*b_e3 - a_e3*b_e0)
         # e12
-        out[6*i + 3] = a_e1*b_e2 - a_e2*b_e1
+        _store(out, 6*i + 3, a_e1*b_e2 - a_e2*b_e1)
         # e13
-        out[6*i + 4] = a_e1*b_e3 - a_e3*b_e1
+        _store(out, 6*i + 4, a_e1*b_e3 - a_e3*b_e1)
         # e23
-        out[6*i + 5] = a_e2*b_e3 - a_e3*b_e2
+        _store(out, 6*i + 5, a_e2*b_e3 - a_e3*b_e2)
 
 
 def track_plane_batch(a, b, out=None):
@@ -1454,24 +1484,24 @@ def _field_dual_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e01 = a[6*i]
-        a_e02 = a[6*i + 1]
-        a_e03 = a[6*i + 2]
-        a_e12 = a[6*i + 3]
-        a_e13 = a[6*i + 4]
-        a_e23 = a[6*i + 5]
+        a_e01 = _load(a, 6*i)
+        a_e02 = _load(a, 6*i + 1)
+        a_e03 = _load(a, 6*i + 2)
+        a_e12 = _load(a, 6*i + 3)
+        a_e13 = _load(a, 6*i + 4)
+        a_e23 = _load(a, 6*i + 5)
         # e01
-        out[6*i] = a_e23
+        _store(out, 6*i, a_e23)
         # e02
-        out[6*i + 1] = -a_e13
+        _store(out, 6*i + 1, -a_e13)
         # e03
-        out[6*i + 2] = a_e12
+        _store(out, 6*i + 2, a_e12)
         # e12
-        out[6*i + 3] = -a_e03
+        _store(out, 6*i + 3, -a_e03)
         # e13
-        out[6*i + 4] = a_e02
+        _store(out, 6*i + 4, a_e02)
         # e23
-        out[6*i + 5] = -a_e01
+        _store(out, 6*i + 5, -a_e01)
 
 
 def field_dual_batch(a, out=None):
@@ -1511,24 +1541,24 @@ def _lorentz_force_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e01 = a[6*i]
-        a_e02 = a[6*i + 1]
-        a_e03 = a[6*i + 2]
-        a_e12 = a[6*i + 3]
-        a_e13 = a[6*i + 4]
-        a_e23 = a[6*i + 5]
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        a_e01 = _load(a, 6*i)
+        a_e02 = _load(a, 6*i + 1)
+        a_e03 = _load(a, 6*i + 2)
+        a_e12 = _load(a, 6*i + 3)
+        a_e13 = _load(a, 6*i + 4)
+        a_e23 = _load(a, 6*i + 5)
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e0
-        out[4*i] = -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3
+        _store(out, 4*i, -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3)
         # e1
-        out[4*i + 1] = -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3
+        _store(out, 4*i + 1, -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3)
         # e2
-        out[4*i + 2] = -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3
+        _store(out, 4*i + 2, -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3)
         # e3
-        out[4*i + 3] = -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2
+        _store(out, 4*i + 3, -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1543,18 +1573,18 @@ def _lorentz_force_one_a(a, b, out):
     a_e13 = a[4]
     a_e23 = a[5]
     for i in range(n):
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e0
-        out[4*i] = -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3
+        _store(out, 4*i, -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3)
         # e1
-        out[4*i + 1] = -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3
+        _store(out, 4*i + 1, -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3)
         # e2
-        out[4*i + 2] = -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3
+        _store(out, 4*i + 2, -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3)
         # e3
-        out[4*i + 3] = -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2
+        _store(out, 4*i + 3, -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1567,20 +1597,20 @@ def _lorentz_force_one_b(a, b, out):
     b_e2 = b[2]
     b_e3 = b[3]
     for i in range(n):
-        a_e01 = a[6*i]
-        a_e02 = a[6*i + 1]
-        a_e03 = a[6*i + 2]
-        a_e12 = a[6*i + 3]
-        a_e13 = a[6*i + 4]
-        a_e23 = a[6*i + 5]
+        a_e01 = _load(a, 6*i)
+        a_e02 = _load(a, 6*i + 1)
+        a_e03 = _load(a, 6*i + 2)
+        a_e12 = _load(a, 6*i + 3)
+        a_e13 = _load(a, 6*i + 4)
+        a_e23 = _load(a, 6*i + 5)
         # e0
-        out[4*i] = -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3
+        _store(out, 4*i, -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3)
         # e1
-        out[4*i + 1] = -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3
+        _store(out, 4*i + 1, -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3)
         # e2
-        out[4*i + 2] = -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3
+        _store(out, 4*i + 2, -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3)
         # e3
-        out[4*i + 3] = -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2
+        _store(out, 4*i + 3, -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2)
 
 
 def lorentz_force_batch(a, b, out=None):
@@ -1628,24 +1658,24 @@ def _fat_dot_event_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
-        b_e01 = b[6*i]
-        b_e02 = b[6*i + 1]
-        b_e03 = b[6*i + 2]
-        b_e12 = b[6*i + 3]
-        b_e13 = b[6*i + 4]
-        b_e23 = b[6*i + 5]
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
+        b_e01 = _load(b, 6*i)
+        b_e02 = _load(b, 6*i + 1)
+        b_e03 = _load(b, 6*i + 2)
+        b_e12 = _load(b, 6*i + 3)
+        b_e13 = _load(b, 6*i + 4)
+        b_e23 = _load(b, 6*i + 5)
         # e0
-        out[4*i] = a_e1*b_e01 + a_e2*b_e02 + a_e3*b_e03
+        _store(out, 4*i, a_e1*b_e01 + a_e2*b_e02 + a_e3*b_e03)
         # e1
-        out[4*i + 1] = a_e0*b_e01 + a_e2*b_e12 + a_e3*b_e13
+        _store(out, 4*i + 1, a_e0*b_e01 + a_e2*b_e12 + a_e3*b_e13)
         # e2
-        out[4*i + 2] = a_e0*b_e02 - a_e1*b_e12 + a_e3*b_e23
+        _store(out, 4*i + 2, a_e0*b_e02 - a_e1*b_e12 + a_e3*b_e23)
         # e3
-        out[4*i + 3] = a_e0*b_e03 - a_e1*b_e13 - a_e2*b_e23
+        _store(out, 4*i + 3, a_e0*b_e03 - a_e1*b_e13 - a_e2*b_e23)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1658,20 +1688,20 @@ def _fat_dot_event_one_a(a, b, out):
     a_e2 = a[2]
     a_e3 = a[3]
     for i in range(n):
-        b_e01 = b[6*i]
-        b_e02 = b[6*i + 1]
-        b_e03 = b[6*i + 2]
-        b_e12 = b[6*i + 3]
-        b_e13 = b[6*i + 4]
-        b_e23 = b[6*i + 5]
+        b_e01 = _load(b, 6*i)
+        b_e02 = _load(b, 6*i + 1)
+        b_e03 = _load(b, 6*i + 2)
+        b_e12 = _load(b, 6*i + 3)
+        b_e13 = _load(b, 6*i + 4)
+        b_e23 = _load(b, 6*i + 5)
         # e0
-        out[4*i] = a_e1*b_e01 + a_e2*b_e02 + a_e3*b_e03
+        _store(out, 4*i, a_e1*b_e01 + a_e2*b_e02 + a_e3*b_e03)
         # e1
-        out[4*i + 1] = a_e0*b_e01 + a_e2*b_e12 + a_e3*b_e13
+        _store(out, 4*i + 1, a_e0*b_e01 + a_e2*b_e12 + a_e3*b_e13)
         # e2
-        out[4*i + 2] = a_e0*b_e02 - a_e1*b_e12 + a_e3*b_e23
+        _store(out, 4*i + 2, a_e0*b_e02 - a_e1*b_e12 + a_e3*b_e23)
         # e3
-        out[4*i + 3] = a_e0*b_e03 - a_e1*b_e13 - a_e2*b_e23
+        _store(out, 4*i + 3, a_e0*b_e03 - a_e1*b_e13 - a_e2*b_e23)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1686,18 +1716,18 @@ def _fat_dot_event_one_b(a, b, out):
     b_e13 = b[4]
     b_e23 = b[5]
     for i in range(n):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
         # e0
-        out[4*i] = a_e1*b_e01 + a_e2*b_e02 + a_e3*b_e03
+        _store(out, 4*i, a_e1*b_e01 + a_e2*b_e02 + a_e3*b_e03)
         # e1
-        out[4*i + 1] = a_e0*b_e01 + a_e2*b_e12 + a_e3*b_e13
+        _store(out, 4*i + 1, a_e0*b_e01 + a_e2*b_e12 + a_e3*b_e13)
         # e2
-        out[4*i + 2] = a_e0*b_e02 - a_e1*b_e12 + a_e3*b_e23
+        _store(out, 4*i + 2, a_e0*b_e02 - a_e1*b_e12 + a_e3*b_e23)
         # e3
-        out[4*i + 3] = a_e0*b_e03 - a_e1*b_e13 - a_e2*b_e23
+        _store(out, 4*i + 3, a_e0*b_e03 - a_e1*b_e13 - a_e2*b_e23)
 
 
 def fat_dot_event_batch(a, b, out=None):
@@ -1745,24 +1775,24 @@ def _right_contract_each(a, b, out):
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_e01 = a[6*i]
-        a_e02 = a[6*i + 1]
-        a_e03 = a[6*i + 2]
-        a_e12 = a[6*i + 3]
-        a_e13 = a[6*i + 4]
-        a_e23 = a[6*i + 5]
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        a_e01 = _load(a, 6*i)
+        a_e02 = _load(a, 6*i + 1)
+        a_e03 = _load(a, 6*i + 2)
+        a_e12 = _load(a, 6*i + 3)
+        a_e13 = _load(a, 6*i + 4)
+        a_e23 = _load(a, 6*i + 5)
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e0
-        out[4*i] = -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3
+        _store(out, 4*i, -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3)
         # e1
-        out[4*i + 1] = -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3
+        _store(out, 4*i + 1, -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3)
         # e2
-        out[4*i + 2] = -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3
+        _store(out, 4*i + 2, -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3)
         # e3
-        out[4*i + 3] = -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2
+        _store(out, 4*i + 3, -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1777,18 +1807,18 @@ def _right_contract_one_a(a, b, out):
     a_e13 = a[4]
     a_e23 = a[5]
     for i in range(n):
-        b_e0 = b[4*i]
-        b_e1 = b[4*i + 1]
-        b_e2 = b[4*i + 2]
-        b_e3 = b[4*i + 3]
+        b_e0 = _load(b, 4*i)
+        b_e1 = _load(b, 4*i + 1)
+        b_e2 = _load(b, 4*i + 2)
+        b_e3 = _load(b, 4*i + 3)
         # e0
-        out[4*i] = -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3
+        _store(out, 4*i, -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3)
         # e1
-        out[4*i + 1] = -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3
+        _store(out, 4*i + 1, -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3)
         # e2
-        out[4*i + 2] = -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3
+        _store(out, 4*i + 2, -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3)
         # e3
-        out[4*i + 3] = -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2
+        _store(out, 4*i + 3, -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1801,20 +1831,20 @@ def _right_contract_one_b(a, b, out):
     b_e2 = b[2]
     b_e3 = b[3]
     for i in range(n):
-        a_e01 = a[6*i]
-        a_e02 = a[6*i + 1]
-        a_e03 = a[6*i + 2]
-        a_e12 = a[6*i + 3]
-        a_e13 = a[6*i + 4]
-        a_e23 = a[6*i + 5]
+        a_e01 = _load(a, 6*i)
+        a_e02 = _load(a, 6*i + 1)
+        a_e03 = _load(a, 6*i + 2)
+        a_e12 = _load(a, 6*i + 3)
+        a_e13 = _load(a, 6*i + 4)
+        a_e23 = _load(a, 6*i + 5)
         # e0
-        out[4*i] = -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3
+        _store(out, 4*i, -a_e01*b_e1 - a_e02*b_e2 - a_e03*b_e3)
         # e1
-        out[4*i + 1] = -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3
+        _store(out, 4*i + 1, -a_e01*b_e0 - a_e12*b_e2 - a_e13*b_e3)
         # e2
-        out[4*i + 2] = -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3
+        _store(out, 4*i + 2, -a_e02*b_e0 + a_e12*b_e1 - a_e23*b_e3)
         # e3
-        out[4*i + 3] = -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2
+        _store(out, 4*i + 3, -a_e03*b_e0 + a_e13*b_e1 + a_e23*b_e2)
 
 
 def right_contract_batch(a, b, out=None):
@@ -1869,30 +1899,30 @@ def _involute_lorentz_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         # s
-        out[8*i] = a_s
+        _store(out, 8*i, a_s)
         # e01
-        out[8*i + 1] = a_e01
+        _store(out, 8*i + 1, a_e01)
         # e02
-        out[8*i + 2] = a_e02
+        _store(out, 8*i + 2, a_e02)
         # e03
-        out[8*i + 3] = a_e03
+        _store(out, 8*i + 3, a_e03)
         # e12
-        out[8*i + 4] = a_e12
+        _store(out, 8*i + 4, a_e12)
         # e13
-        out[8*i + 5] = a_e13
+        _store(out, 8*i + 5, a_e13)
         # e23
-        out[8*i + 6] = a_e23
+        _store(out, 8*i + 6, a_e23)
         # e0123
-        out[8*i + 7] = a_e0123
+        _store(out, 8*i + 7, a_e0123)
 
 
 def involute_lorentz_batch(a, out=None):
@@ -1939,30 +1969,30 @@ def _conjugate_lorentz_each(a, out):
     n = out.shape[0]
     a, out = a.reshape(-1), out.reshape(-1)
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         # s
-        out[8*i] = a_s
+        _store(out, 8*i, a_s)
         # e01
-        out[8*i + 1] = -a_e01
+        _store(out, 8*i + 1, -a_e01)
         # e02
-        out[8*i + 2] = -a_e02
+        _store(out, 8*i + 2, -a_e02)
         # e03
-        out[8*i + 3] = -a_e03
+        _store(out, 8*i + 3, -a_e03)
         # e12
-        out[8*i + 4] = -a_e12
+        _store(out, 8*i + 4, -a_e12)
         # e13
-        out[8*i + 5] = -a_e13
+        _store(out, 8*i + 5, -a_e13)
         # e23
-        out[8*i + 6] = -a_e23
+        _store(out, 8*i + 6, -a_e23)
         # e0123
-        out[8*i + 7] = a_e0123
+        _store(out, 8*i + 7, a_e0123)
 
 
 def conjugate_lorentz_batch(a, out=None):
@@ -2006,38 +2036,38 @@ def difference(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _difference_each(a, b, out):
-    """difference of row i of every argument, for i < n, last row first."""
+    """difference of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
-        b_s = b[4*i]
-        b_e01 = b[4*i + 1]
-        b_e02 = b[4*i + 2]
-        b_e03 = b[4*i + 3]
+    for i in range(n):
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
+        b_s = _load(b, 4*i)
+        b_e01 = _load(b, 4*i + 1)
+        b_e02 = _load(b, 4*i + 2)
+        b_e03 = _load(b, 4*i + 3)
         # s
-        out[8*i] = a_s - b_s
+        _store(out, 8*i, a_s - b_s)
         # e01
-        out[8*i + 1] = a_e01 - b_e01
+        _store(out, 8*i + 1, a_e01 - b_e01)
         # e02
-        out[8*i + 2] = a_e02 - b_e02
+        _store(out, 8*i + 2, a_e02 - b_e02)
         # e03
-        out[8*i + 3] = a_e03 - b_e03
+        _store(out, 8*i + 3, a_e03 - b_e03)
         # e12
-        out[8*i + 4] = a_e12
+        _store(out, 8*i + 4, a_e12)
         # e13
-        out[8*i + 5] = a_e13
+        _store(out, 8*i + 5, a_e13)
         # e23
-        out[8*i + 6] = a_e23
+        _store(out, 8*i + 6, a_e23)
         # e0123
-        out[8*i + 7] = a_e0123
+        _store(out, 8*i + 7, a_e0123)
 
 
 @njit(cache=True, error_model="numpy")
@@ -2054,26 +2084,26 @@ def _difference_one_a(a, b, out):
     a_e23 = a[6]
     a_e0123 = a[7]
     for i in range(n):
-        b_s = b[4*i]
-        b_e01 = b[4*i + 1]
-        b_e02 = b[4*i + 2]
-        b_e03 = b[4*i + 3]
+        b_s = _load(b, 4*i)
+        b_e01 = _load(b, 4*i + 1)
+        b_e02 = _load(b, 4*i + 2)
+        b_e03 = _load(b, 4*i + 3)
         # s
-        out[8*i] = a_s - b_s
+        _store(out, 8*i, a_s - b_s)
         # e01
-        out[8*i + 1] = a_e01 - b_e01
+        _store(out, 8*i + 1, a_e01 - b_e01)
         # e02
-        out[8*i + 2] = a_e02 - b_e02
+        _store(out, 8*i + 2, a_e02 - b_e02)
         # e03
-        out[8*i + 3] = a_e03 - b_e03
+        _store(out, 8*i + 3, a_e03 - b_e03)
         # e12
-        out[8*i + 4] = a_e12
+        _store(out, 8*i + 4, a_e12)
         # e13
-        out[8*i + 5] = a_e13
+        _store(out, 8*i + 5, a_e13)
         # e23
-        out[8*i + 6] = a_e23
+        _store(out, 8*i + 6, a_e23)
         # e0123
-        out[8*i + 7] = a_e0123
+        _store(out, 8*i + 7, a_e0123)
 
 
 @njit(cache=True, error_model="numpy")
@@ -2086,30 +2116,30 @@ def _difference_one_b(a, b, out):
     b_e02 = b[2]
     b_e03 = b[3]
     for i in range(n):
-        a_s = a[8*i]
-        a_e01 = a[8*i + 1]
-        a_e02 = a[8*i + 2]
-        a_e03 = a[8*i + 3]
-        a_e12 = a[8*i + 4]
-        a_e13 = a[8*i + 5]
-        a_e23 = a[8*i + 6]
-        a_e0123 = a[8*i + 7]
+        a_s = _load(a, 8*i)
+        a_e01 = _load(a, 8*i + 1)
+        a_e02 = _load(a, 8*i + 2)
+        a_e03 = _load(a, 8*i + 3)
+        a_e12 = _load(a, 8*i + 4)
+        a_e13 = _load(a, 8*i + 5)
+        a_e23 = _load(a, 8*i + 6)
+        a_e0123 = _load(a, 8*i + 7)
         # s
-        out[8*i] = a_s - b_s
+        _store(out, 8*i, a_s - b_s)
         # e01
-        out[8*i + 1] = a_e01 - b_e01
+        _store(out, 8*i + 1, a_e01 - b_e01)
         # e02
-        out[8*i + 2] = a_e02 - b_e02
+        _store(out, 8*i + 2, a_e02 - b_e02)
         # e03
-        out[8*i + 3] = a_e03 - b_e03
+        _store(out, 8*i + 3, a_e03 - b_e03)
         # e12
-        out[8*i + 4] = a_e12
+        _store(out, 8*i + 4, a_e12)
         # e13
-        out[8*i + 5] = a_e13
+        _store(out, 8*i + 5, a_e13)
         # e23
-        out[8*i + 6] = a_e23
+        _store(out, 8*i + 6, a_e23)
         # e0123
-        out[8*i + 7] = a_e0123
+        _store(out, 8*i + 7, a_e0123)
 
 
 def difference_batch(a, b, out=None):
@@ -2165,40 +2195,40 @@ def event_plus_field(a, b):
 
 @njit(cache=True, error_model="numpy")
 def _event_plus_field_each(a, b, out):
-    """event_plus_field of row i of every argument, for i < n, last row first."""
+    """event_plus_field of row i of every argument, for i < n."""
     n = out.shape[0]
     a, b, out = a.reshape(-1), b.reshape(-1), out.reshape(-1)
-    for i in range(n - 1, -1, -1):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
-        b_e01 = b[6*i]
-        b_e02 = b[6*i + 1]
-        b_e03 = b[6*i + 2]
-        b_e12 = b[6*i + 3]
-        b_e13 = b[6*i + 4]
-        b_e23 = b[6*i + 5]
+    for i in range(n):
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
+        b_e01 = _load(b, 6*i)
+        b_e02 = _load(b, 6*i + 1)
+        b_e03 = _load(b, 6*i + 2)
+        b_e12 = _load(b, 6*i + 3)
+        b_e13 = _load(b, 6*i + 4)
+        b_e23 = _load(b, 6*i + 5)
         # e0
-        out[10*i] = a_e0
+        _store(out, 10*i, a_e0)
         # e1
-        out[10*i + 1] = a_e1
+        _store(out, 10*i + 1, a_e1)
         # e2
-        out[10*i + 2] = a_e2
+        _store(out, 10*i + 2, a_e2)
         # e3
-        out[10*i + 3] = a_e3
+        _store(out, 10*i + 3, a_e3)
         # e01
-        out[10*i + 4] = b_e01
+        _store(out, 10*i + 4, b_e01)
         # e02
-        out[10*i + 5] = b_e02
+        _store(out, 10*i + 5, b_e02)
         # e03
-        out[10*i + 6] = b_e03
+        _store(out, 10*i + 6, b_e03)
         # e12
-        out[10*i + 7] = b_e12
+        _store(out, 10*i + 7, b_e12)
         # e13
-        out[10*i + 8] = b_e13
+        _store(out, 10*i + 8, b_e13)
         # e23
-        out[10*i + 9] = b_e23
+        _store(out, 10*i + 9, b_e23)
 
 
 @njit(cache=True, error_model="numpy")
@@ -2211,32 +2241,32 @@ def _event_plus_field_one_a(a, b, out):
     a_e2 = a[2]
     a_e3 = a[3]
     for i in range(n):
-        b_e01 = b[6*i]
-        b_e02 = b[6*i + 1]
-        b_e03 = b[6*i + 2]
-        b_e12 = b[6*i + 3]
-        b_e13 = b[6*i + 4]
-        b_e23 = b[6*i + 5]
+        b_e01 = _load(b, 6*i)
+        b_e02 = _load(b, 6*i + 1)
+        b_e03 = _load(b, 6*i + 2)
+        b_e12 = _load(b, 6*i + 3)
+        b_e13 = _load(b, 6*i + 4)
+        b_e23 = _load(b, 6*i + 5)
         # e0
-        out[10*i] = a_e0
+        _store(out, 10*i, a_e0)
         # e1
-        out[10*i + 1] = a_e1
+        _store(out, 10*i + 1, a_e1)
         # e2
-        out[10*i + 2] = a_e2
+        _store(out, 10*i + 2, a_e2)
         # e3
-        out[10*i + 3] = a_e3
+        _store(out, 10*i + 3, a_e3)
         # e01
-        out[10*i + 4] = b_e01
+        _store(out, 10*i + 4, b_e01)
         # e02
-        out[10*i + 5] = b_e02
+        _store(out, 10*i + 5, b_e02)
         # e03
-        out[10*i + 6] = b_e03
+        _store(out, 10*i + 6, b_e03)
         # e12
-        out[10*i + 7] = b_e12
+        _store(out, 10*i + 7, b_e12)
         # e13
-        out[10*i + 8] = b_e13
+        _store(out, 10*i + 8, b_e13)
         # e23
-        out[10*i + 9] = b_e23
+        _store(out, 10*i + 9, b_e23)
 
 
 @njit(cache=True, error_model="numpy")
@@ -2251,30 +2281,30 @@ def _event_plus_field_one_b(a, b, out):
     b_e13 = b[4]
     b_e23 = b[5]
     for i in range(n):
-        a_e0 = a[4*i]
-        a_e1 = a[4*i + 1]
-        a_e2 = a[4*i + 2]
-        a_e3 = a[4*i + 3]
+        a_e0 = _load(a, 4*i)
+        a_e1 = _load(a, 4*i + 1)
+        a_e2 = _load(a, 4*i + 2)
+        a_e3 = _load(a, 4*i + 3)
         # e0
-        out[10*i] = a_e0
+        _store(out, 10*i, a_e0)
         # e1
-        out[10*i + 1] = a_e1
+        _store(out, 10*i + 1, a_e1)
         # e2
-        out[10*i + 2] = a_e2
+        _store(out, 10*i + 2, a_e2)
         # e3
-        out[10*i + 3] = a_e3
+        _store(out, 10*i + 3, a_e3)
         # e01
-        out[10*i + 4] = b_e01
+        _store(out, 10*i + 4, b_e01)
         # e02
-        out[10*i + 5] = b_e02
+        _store(out, 10*i + 5, b_e02)
         # e03
-        out[10*i + 6] = b_e03
+        _store(out, 10*i + 6, b_e03)
         # e12
-        out[10*i + 7] = b_e12
+        _store(out, 10*i + 7, b_e12)
         # e13
-        out[10*i + 8] = b_e13
+        _store(out, 10*i + 8, b_e13)
         # e23
-        out[10*i + 9] = b_e23
+        _store(out, 10*i + 9, b_e23)
 
 
 def event_plus_field_batch(a, b, out=None):

@@ -13,22 +13,25 @@ flatten their (N, k) arguments:
   row costs only that matrix applied to it (one motor, many points).
 
 Each loop spells the kernel's formulas out in its body: a row's components are read into
-locals at constant offsets (`a[4*i + 1]`), then each result component is stored.  Calling the
-scalar kernel instead left long kernels as a call per row (too long for LLVM's inliner: 4x
-slower for the spacetime sandwich).  There is no fast-math, not even FMA contraction: with it
-the same row could round differently in different loops (which products fuse depends on the
-code around them), and broadcasting one element would no longer equal repeating it.
+locals at constant offsets (`a_e12 = _load(a, 4*i + 1)`), then each result component is stored
+(`_store(out, 4*i + 1, ...)`).  Calling the scalar kernel instead left long kernels as a call per
+row (too long for LLVM's inliner: 4x slower for the spacetime sandwich).  There is no fast-math,
+not even FMA contraction: with it the same row could round differently in different loops
+(which products fuse depends on the code around them), and broadcasting one element would no
+longer equal repeating it.
 
-Long loops run from the last row to the first, the others from the first row to the last.  A
-loop is long when a row moves at least `LONG_ROW` components (loaded plus stored).  LLVM leaves
-such loops scalar (one load and one store per component), and on numpy's arrays, which all start
-at the same offset in a 4 KiB page, the forward scalar loop stalls: at N = 10^6 the 8 x 8 product
-took 1.46x its backward time, the 3D projective line sandwich 1.50x, the spacetime product 1.67x
-(aligned at a different page offset, forwards was as fast again).  The shorter loops LLVM
-vectorizes, and those run up to 1.3x faster forwards (one rotor on N vectors: 1.00x the streaming
-time forwards, 1.28x backwards).  Measured over every binary loop of every example spec (issue 8;
-numba 0.68, Xeon with AVX-512): forwards was never more than 1.14x slower below the threshold,
-and backwards never more than 1.06x slower above it.
+`_load` and `_store` are numba intrinsics defined in the module: plain element access, except
+that the address is an `inbounds` GEP (the batch wrapper has checked every shape, so each index
+is in range).  With numba's own indexing the addresses are not `inbounds`, so LLVM's loop
+vectorizer needs a run-time no-wrap check per access and gives up beyond 16 of them ("Too many
+SCEV assumptions", its `-vectorize-scev-check-threshold`): every loop whose row moves more than
+16 components stayed scalar.  With `inbounds` they vectorize (issue 8, numba 0.68, Xeon with
+AVX-512, N = 10^6 unless said): the 8 x 8 product 0.73x the time of the scalar loop (0.59x in
+cache), the motor product 0.80x, the line sandwich 0.80x, the spacetime product 0.72x; two
+point-pair outer products got slower in cache (1.5x, still 1.0x at N = 10^6) and the spacetime
+`difference` 1.27x at N = 10^6, where LLVM's cost model misjudged.  The loops run forwards:
+backwards, kept earlier for the scalar loops, was slower for nearly every vectorized loop (up
+to 1.2x); LLVM's remarks come from `llvmlite.binding.set_option` before compiling.
 """
 from __future__ import annotations
 
@@ -41,7 +44,6 @@ from .printer import Printer, Syntax, python_number
 from .python import PY_FUNCTIONS
 
 DECORATOR = '@njit(cache=True, error_model="numpy")'
-LONG_ROW = 18            # components loaded and stored per row from which a loop runs backwards
 PAD = "    "
 
 
@@ -57,9 +59,9 @@ class BodyView:
     """The statements of one loop: what is read and computed once, then what is done per row."""
 
     once: tuple[OutputView, ...]        # a single element's components; a sandwich's matrix
-    load: tuple[OutputView, ...]        # b_e1 = b[3*i], ...: the row's components
+    load: tuple[OutputView, ...]        # b_e1 = _load(b, 3*i), ...: the row's components
     temps: tuple[OutputView, ...]       # the kernel's temporaries, per row
-    stores: tuple[OutputView, ...]      # out[3*i + 1] = the formula of that component
+    stores: tuple[OutputView, ...]      # (3*i + 1, the formula of that component): _store(out, ...)
     comps: tuple[str, ...]              # the result component of each store (comments)
 
 
@@ -68,7 +70,6 @@ class LoopView:
     name: str                   # "_compose_each"
     doc: str
     body: BodyView
-    rows: str                   # "range(n)", or "range(n - 1, -1, -1)" for a long loop
 
 
 @dataclass(frozen=True)
@@ -82,12 +83,19 @@ class BatchView:
     loops: tuple[LoopView, ...]  # each, then one_a and one_b for binary kernels
 
 
-def components(name: str, k: int, row: str) -> list[str]:
-    """The k components of one row of a flattened array: a[4*i], a[4*i + 1], ... or a[0], ..."""
+def offsets(k: int, row: str) -> list[str]:
+    """Where the k components of one row of a flattened array are: 4*i, 4*i + 1, ... or 0, 1, ..."""
     if row == "0":
-        return [f"{name}[{j}]" for j in range(k)]
+        return [str(j) for j in range(k)]
     first = row if k == 1 else f"{k}*{row}"
-    return [f"{name}[{first} + {j}]" if j else f"{name}[{first}]" for j in range(k)]
+    return [f"{first} + {j}" if j else first for j in range(k)]
+
+
+def components(name: str, k: int, row: str) -> list[str]:
+    """How the loops read them: a[0], a[1], ... once, _load(a, 4*i), ... per row."""
+    if row == "0":
+        return [f"{name}[{at}]" for at in offsets(k, row)]
+    return [f"_load({name}, {at})" for at in offsets(k, row)]
 
 
 def counted(program: Program) -> tuple[str, str]:
@@ -139,24 +147,20 @@ class NumbaEmitter(Emitter):
             load=tuple(u for a in args if a.name != single for u in self.unpacked(a, "i")),
             temps=() if fixed else self.printed(printer, prog.temps, 3),
             stores=tuple(OutputView(at, printer.wrapped(o.expr, PAD * 3))
-                         for at, o in zip(components("out", len(result), "i"), prog.outputs)),
+                         for at, o in zip(offsets(len(result), "i"), prog.outputs)),
             comps=tuple(result))
-        backwards = len(body.load) + len(body.stores) >= LONG_ROW
         return LoopView(f"_{kernel.name}_{f'one_{single}' if single else 'each'}",
-                        self.loop_doc(kernel, single, fixed, backwards), body,
-                        "range(n - 1, -1, -1)" if backwards else "range(n)")
+                        self.loop_doc(kernel, single, fixed), body)
 
     @staticmethod
-    def loop_doc(kernel: Kernel, single: str, fixed: bool, backwards: bool) -> str:
-        order = ", last row first" if backwards else ""
+    def loop_doc(kernel: Kernel, single: str, fixed: bool) -> str:
         if fixed:
             once, per_row = counted(kernel.one_to_many)
             return (f"{kernel.name} of one `a` with each row of `b`: the matrix of `a` once "
-                    f"({once}),\n    then {per_row} per row{order}.")
+                    f"({once}),\n    then {per_row} per row.")
         if single:
-            return (f"{kernel.name} of one `{single}` with each row of the other argument"
-                    f"{order}.")
-        return f"{kernel.name} of row i of every argument, for i < n{order}."
+            return f"{kernel.name} of one `{single}` with each row of the other argument."
+        return f"{kernel.name} of row i of every argument, for i < n."
 
     @staticmethod
     def printed(printer: Printer, assignments, depth: int) -> tuple[OutputView, ...]:
@@ -166,6 +170,6 @@ class NumbaEmitter(Emitter):
 
     @staticmethod
     def unpacked(arg: ArgView, row: str) -> tuple[OutputView, ...]:
-        """One `a_e12 = a[4*i + 1]` per component (row "0": the single element)."""
+        """One `a_e12 = _load(a, 4*i + 1)` per component (row "0": `a[1]`, the single element)."""
         return tuple(OutputView(local, item) for local, item in
                      zip(arg.locals, components(arg.name, len(arg.fields), row)))
