@@ -191,6 +191,21 @@ def test_numba_loops_go_through_inbounds_load_and_store(example):
     assert "inbounds=True" in text
 
 
+def test_python_and_numba_results_are_floats_for_float_inputs(example):
+    # README: every component of a result is a float, also a constant one (up()'s eo = 1.0) and a
+    # structural zero of a declared result type (a sandwich matrix's last row) - never an int
+    _, module, out = example
+    py = verify.load_python(out / f"{module.name}.py", f"{module.name}_floats")
+    nb = native.load_numba(out / f"{module.name}_numba.py")
+    width = {t.name: len(t.components) for t in module.types}
+    g = np.random.default_rng(3)
+    for k in module.kernels:
+        args = [tuple(float(v) for v in g.uniform(0.5, 1.0, width[t])) for t in py.KERNELS[k.name][0]]
+        for target, fn in (("python", getattr(py, k.name)), ("numba", getattr(nb, k.name))):
+            got = fn(*args)
+            assert all(type(v) is float for v in got), (k.name, target, [type(v) for v in got])
+
+
 def test_batch_may_write_over_an_argument(example):
     # each row is read whole before it is written, so out=a (or out=b) gives the rows of a fresh out
     _, module, out = example

@@ -1277,11 +1277,11 @@ def motor_matrix(a):
         # m2_3
         2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123),
         # m3_0
-        0,
+        0.0,
         # m3_1
-        0,
+        0.0,
         # m3_2
-        0,
+        0.0,
         # m3_3
         q_9 + q_0 + q_5 + q_3,
     )
@@ -1336,11 +1336,11 @@ def _motor_matrix_each(a, out):
         # m2_3
         _store(out, 16*i + 11, 2*(-a_s*a_e01 - a_e02*a_e12 + a_e03*a_e31 - a_e23*a_e0123))
         # m3_0
-        _store(out, 16*i + 12, 0)
+        _store(out, 16*i + 12, 0.0)
         # m3_1
-        _store(out, 16*i + 13, 0)
+        _store(out, 16*i + 13, 0.0)
         # m3_2
-        _store(out, 16*i + 14, 0)
+        _store(out, 16*i + 14, 0.0)
         # m3_3
         _store(out, 16*i + 15, q_9 + q_0 + q_5 + q_3)
 

@@ -221,7 +221,7 @@ def up(a):
         # e3
         a_e3,
         # eo
-        1,
+        1.0,
         # ei
         0.5*(a_e1*a_e1 + a_e2*a_e2 + a_e3*a_e3),
     )
@@ -243,7 +243,7 @@ def _up_each(a, out):
         # e3
         _store(out, 5*i + 2, a_e3)
         # eo
-        _store(out, 5*i + 3, 1)
+        _store(out, 5*i + 3, 1.0)
         # ei
         _store(out, 5*i + 4, 0.5*(a_e1*a_e1 + a_e2*a_e2 + a_e3*a_e3))
 

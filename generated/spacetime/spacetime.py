@@ -251,7 +251,7 @@ def compose_boosts(a, b):
         # e23
         -a_e02*b_e03 + a_e03*b_e02,
         # e0123
-        0,
+        0.0,
     )
 
 

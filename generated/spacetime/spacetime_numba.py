@@ -821,7 +821,7 @@ def compose_boosts(a, b):
         # e23
         -a_e02*b_e03 + a_e03*b_e02,
         # e0123
-        0,
+        0.0,
     )
 
 
@@ -854,7 +854,7 @@ def _compose_boosts_each(a, b, out):
         # e23
         _store(out, 8*i + 6, -a_e02*b_e03 + a_e03*b_e02)
         # e0123
-        _store(out, 8*i + 7, 0)
+        _store(out, 8*i + 7, 0.0)
 
 
 @njit(cache=True, error_model="numpy")
@@ -886,7 +886,7 @@ def _compose_boosts_one_a(a, b, out):
         # e23
         _store(out, 8*i + 6, -a_e02*b_e03 + a_e03*b_e02)
         # e0123
-        _store(out, 8*i + 7, 0)
+        _store(out, 8*i + 7, 0.0)
 
 
 @njit(cache=True, error_model="numpy")
@@ -918,7 +918,7 @@ def _compose_boosts_one_b(a, b, out):
         # e23
         _store(out, 8*i + 6, -a_e02*b_e03 + a_e03*b_e02)
         # e0123
-        _store(out, 8*i + 7, 0)
+        _store(out, 8*i + 7, 0.0)
 
 
 def compose_boosts_batch(a, b, out=None):

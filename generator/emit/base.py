@@ -90,7 +90,7 @@ class Emitter:
         args = tuple(self.arg_view(module, name, t) for name, t in zip(kernel.arg_names, kernel.args))
         prog = kernel.program
         temps = tuple(OutputView(a.target, printer.wrapped(a.expr, indent)) for a in prog.temps)
-        outs = tuple(OutputView(a.target, printer.wrapped(a.expr, indent)) for a in prog.outputs)
+        outs = tuple(OutputView(a.target, printer.result(a.expr, indent)) for a in prog.outputs)
         result = module.type(kernel.result)
         sig = ", ".join(kernel.args)
         doc = comment_text(f"{kernel.op}({sig}) -> {kernel.result}: {kernel.summary}")

@@ -40,7 +40,7 @@ from dataclasses import dataclass
 from ..ir import Kernel, Module, Program
 from ..optimize import program_cost
 from .base import ArgView, Emitter, OutputView, helper_views
-from .printer import Printer, Syntax, python_number
+from .printer import Printer, Syntax, python_float, python_number
 from .python import PY_FUNCTIONS
 
 DECORATOR = '@njit(cache=True, error_model="numpy")'
@@ -110,7 +110,7 @@ class NumbaEmitter(Emitter):
     template = "numba/module.py.j2"
 
     def syntax(self) -> Syntax:
-        return Syntax(python_number, PY_FUNCTIONS)
+        return Syntax(python_number, PY_FUNCTIONS, constant=python_float)
 
     def files(self, module: Module) -> dict[str, str]:
         printer = Printer(self.syntax())
@@ -146,7 +146,7 @@ class NumbaEmitter(Emitter):
             once=tuple(once) + hoisted,
             load=tuple(u for a in args if a.name != single for u in self.unpacked(a, "i")),
             temps=() if fixed else self.printed(printer, prog.temps, 3),
-            stores=tuple(OutputView(at, printer.wrapped(o.expr, PAD * 3))
+            stores=tuple(OutputView(at, printer.result(o.expr, PAD * 3))
                          for at, o in zip(offsets(len(result), "i"), prog.outputs)),
             comps=tuple(result))
         return LoopView(f"_{kernel.name}_{f'one_{single}' if single else 'each'}",

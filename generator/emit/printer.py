@@ -22,6 +22,7 @@ class Syntax:
     number: object                          # Fraction -> str
     functions: dict = field(default_factory=dict)   # tree function name -> target spelling
     needs: dict = field(default_factory=dict)       # tree function name -> import/include it needs
+    constant: object = None                 # Fraction -> str for a result that is a bare number
 
 
 def python_number(value: Fraction) -> str:
@@ -32,6 +33,11 @@ def python_number(value: Fraction) -> str:
     if value.denominator & (value.denominator - 1) == 0:      # exact in binary: a float literal
         return repr(value.numerator / value.denominator)
     return "(" + PythonCodePrinter().doprint(Rational(value.numerator, value.denominator)) + ")"
+
+
+def python_float(value: Fraction) -> str:
+    """A Python literal whose value is a float: 1.0, 0.5, (1/3) (true division)."""
+    return f"{value.numerator}.0" if value.denominator == 1 else python_number(value)
 
 
 def c_double(value: Fraction) -> str:
@@ -90,6 +96,14 @@ class Printer:
         if i == 0:
             return f"-{body}" if sign < 0 else body
         return f" - {body}" if sign < 0 else f" + {body}"
+
+    def result(self, node, indent: str) -> str:
+        """A result component: `wrapped`, except that a bare number prints with the syntax's
+        `constant` when it has one (Python: 1.0, not 1, so every component is a float)."""
+        if isinstance(node, Num) and self.syntax.constant is not None:
+            text = self.syntax.constant(abs(node.value))
+            return f"-{text}" if node.value < 0 else text
+        return self.wrapped(node, indent)
 
     def wrapped(self, node, indent: str) -> str:
         """The expression, broken at top-level term boundaries when longer than WIDTH."""

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 from ..ir import Module
 from .base import Emitter, helper_views
-from .printer import Printer, Syntax, python_number
+from .printer import Printer, Syntax, python_float, python_number
 
 PY_FUNCTIONS = {"sqrt": "math.sqrt", "cos": "math.cos", "sin": "math.sin", "cosh": "math.cosh",
                 "sinh": "math.sinh", "atan2": "math.atan2", "abs": "abs",
@@ -16,7 +16,7 @@ class PythonEmitter(Emitter):
     suffix = ".py"
 
     def syntax(self) -> Syntax:
-        return Syntax(python_number, PY_FUNCTIONS)
+        return Syntax(python_number, PY_FUNCTIONS, constant=python_float)
 
     def files(self, module: Module) -> dict[str, str]:
         printer = Printer(self.syntax())
