@@ -4,10 +4,10 @@ numpy-quaternion and scipy, all in one run.
     env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE python bench/run.py            # full, ~2 minutes
     env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE python bench/run.py --quick    # < 1 minute
 
-Needs the test extras (`pip install -e ".[test]"`: scipy, numpy-quaternion, matplotlib) and a C
-compiler.  The OpenBLAS variables are unset because this project's machines set them to values
-that slow numpy's matrix products (the dense einsum) down; RESULTS.md records what was in force
-and which BLAS kernel ran (envinfo.py).
+Needs the bench extras (`pip install -e ".[bench]"`: scipy, numpy-quaternion, matplotlib; the
+test extras include them) and a C compiler.  The OpenBLAS variables are unset because this
+project's machines set them to values that slow numpy's matrix products (the dense einsum) down;
+RESULTS.md records what was in force and which BLAS kernel ran (envinfo.py).
 
 A full run prints every table as markdown and writes bench/RESULTS.md and bench/results.png;
 `--quick` (N = 10^4 and 10^5, fewer repetitions and dimensions) writes them to a temporary
@@ -148,8 +148,21 @@ def parse(argv) -> tuple[Settings, Path | None]:
     return settings, args.out or (None if args.quick else HERE)
 
 
+BENCH_MODULES = {"quaternion": "numpy-quaternion", "scipy": "scipy", "matplotlib": "matplotlib"}
+
+
+def require_extras() -> None:
+    """Stop with a clear message, before two minutes of timing, if a bench extra is missing."""
+    import importlib.util
+    missing = [pkg for mod, pkg in BENCH_MODULES.items() if importlib.util.find_spec(mod) is None]
+    if missing:
+        raise SystemExit(f"bench: {', '.join(missing)} not installed; "
+                         "run `python -m pip install -e \".[bench]\"` first")
+
+
 def main(argv=None) -> None:
     settings, out = parse(argv)
+    require_extras()
     start = time.perf_counter()
     with tempfile.TemporaryDirectory(prefix="bladesmith-bench-") as tmp:
         found = measure_everything(settings, Path(tmp))
