@@ -25,6 +25,10 @@ READING = """How the figures the issue leaves open are read:
   of specs/arm.toml."""
 
 
+NO_FMA = ("numba runs without FMA contraction (emit/numba.py: the same row rounds alike in "
+          "every loop), the C build (GNU C, -march=native) with it")
+
+
 @dataclass(frozen=True)
 class Goal:
     figure: str
@@ -70,7 +74,7 @@ def streaming(results: dict, sizes, notes: dict) -> list[Goal]:
             f"in cache (N = {small:,}) {impl} takes {cache[impl].median:.2f} ns per element "
             f"({other}: {cache[other].median:.2f}), {share:.0f} % of the stream's time at "
             f"N = {big:,} ({stream:.2f} ns) for the arithmetic alone; the fastest repetitions: "
-            f"{best:.2f}x"])
+            f"{best:.2f}x"] + ([NO_FMA] if impl == "numba" else []))
     return [explained(at_most(f"{impl} `{c.kernel}` ({c.label}) / streaming baseline, "
                               f"N = {big:,}", ratio(results, c, big, impl, "stream"), 1.2),
                       why(c, impl))
