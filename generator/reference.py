@@ -38,8 +38,20 @@ as the Clifford action on the exterior algebra (Chevalley's construction):
   Unary operations (reverse, involution, conjugate, complement, dual, inverse, exp) follow
   their definitions directly.
 
-dtype=float gives float64 tables; dtype=object gives exact Fraction arithmetic (use it for
+dtype=float gives float64 arithmetic; dtype=object gives exact Fraction arithmetic (use it for
 small n only: the exact tables cost about 2**(3n) Fraction operations).
+
+With float64 the products never build the tensor: the same recursion is applied to the
+right-hand factor instead of to matrices,
+
+    e_A X = L_i (e_B X) - sum_k (C_i e_B)_k e_{B - b_k} X,     e_empty X = X,
+
+with each L_i applied to a dense vector through index arrays (`_actions`: the entries of W_i
+and C_i, never a 2^n x 2^n matrix), and A X = sum_A A[A] e_A X over the non-zero entries of A.
+A product then costs about (non-zero entries of A) x grade x 2^n operations and 2^n floats per
+intermediate, so the reference serves every dimension a spec allows (16), while the tensor,
+2^(3n) entries, is built only for `left_matrix` (inverse, exp) and only up to `MATRIX_MAX_N`.
+The exact tables keep the tensor; tests check the two paths against each other.
 """
 
 import itertools
@@ -53,7 +65,13 @@ try:  # optional, only for exp() with float tables
 except Exception:  # pragma: no cover - scipy is a dependency, but keep the oracle standalone
     _scipy_linalg = None
 
-__all__ = ["Reference"]
+__all__ = ["Reference", "TooLarge"]
+
+MATRIX_MAX_N = 10       # largest n for which a 2^n x 2^n matrix is built (inverse, exp)
+
+
+class TooLarge(ValueError):
+    """The operation needs a dense 2^n x 2^n matrix, and n is above MATRIX_MAX_N."""
 
 
 def _popcount(x):
@@ -183,6 +201,7 @@ class Reference:
         self._W = None
         self._C = None
         self._T = None
+        self._act = None
         self._comp_sign = None
         self._pseudo_sq = None
 
@@ -263,6 +282,56 @@ class Reference:
             self._W, self._C = W, C
         return self._W, self._C
 
+    def _actions(self):
+        """W_i and C_i as index arrays (float path), from the same definitions as `_vector_ops`:
+        per i, the wedge as (source bitmaps, target bitmaps, signs), and the contraction as one
+        such triple per j with G[i, j] != 0 (source: the bitmaps holding j, target: without j,
+        value (-1)^(position of j) G[i, j]).  Within a triple the targets are distinct."""
+        if self._act is None:
+            n, every = self.n, np.arange(self.size)
+            odd = self._grades % 2
+            wedge, contraction = [], []
+            for i in range(n):
+                bit, below = 1 << i, (1 << i) - 1
+                src = every[(every & bit) == 0]
+                wedge.append((src, src | bit, np.where(odd[src & below] == 1, -1.0, 1.0)))
+                terms = []
+                for j in range(n):
+                    g = float(self.metric_exact[i][j])
+                    if g != 0:
+                        jbit = 1 << j
+                        src_j = every[(every & jbit) != 0]
+                        sign = np.where(odd[src_j & (jbit - 1)] == 1, -1.0, 1.0)
+                        terms.append((src_j, src_j & ~jbit, g * sign))
+                contraction.append(terms)
+            self._act = (wedge, contraction)
+        return self._act
+
+    def _apply_L(self, i, X):
+        """L_i X = W_i X + C_i X for a dense float vector X."""
+        wedge, contraction = self._actions()
+        out = np.zeros(self.size)
+        src, dst, sign = wedge[i]
+        out[dst] += sign * X[src]
+        for src, dst, value in contraction[i]:
+            out[dst] += value * X[src]
+        return out
+
+    def _blade_times(self, a, X, memo):
+        """e_a X (float path), by the recursion of the module docstring; memo: {a: e_a X}."""
+        if a == 0:
+            return X
+        if a not in memo:
+            i = (a & -a).bit_length() - 1       # lowest factor of a
+            b = a ^ (1 << i)
+            Y = self._apply_L(i, self._blade_times(b, X, memo))
+            for k, j in enumerate(_elements(b, self.n)):    # minus (f_i _| e_b) X
+                g = self.metric_exact[i][j]
+                if g != 0:
+                    Y = Y - (-float(g) if k % 2 else float(g)) * self._blade_times(b ^ (1 << j), X, memo)
+            memo[a] = Y
+        return memo[a]
+
     def _apply_sparse(self, op, M):
         """op @ M, exploiting the sparsity of op (used for exact tables)."""
         out = self._zeros(M.shape)
@@ -318,10 +387,18 @@ class Reference:
         for i in factors:
             if not 0 <= i < self.n:
                 raise ValueError(f"basis vector index {i} out of range for n = {self.n}")
-        W, _ = self._vector_ops()
         out = self.scalar(1)
-        for i in reversed(factors):  # f_a ^ (f_b ^ (... ^ 1))
-            out = W[i] @ out
+        if self.exact:
+            W, _ = self._vector_ops()
+            for i in reversed(factors):  # f_a ^ (f_b ^ (... ^ 1))
+                out = W[i] @ out
+            return out
+        wedge, _ = self._actions()
+        for i in reversed(factors):
+            src, dst, sign = wedge[i]
+            nxt = np.zeros(self.size)
+            nxt[dst] = sign * out[src]
+            out = nxt
         return out
 
     def grade_of(self, bitmap):
@@ -343,8 +420,18 @@ class Reference:
 
     # ------------------------------------------------------------------ products
     def left_matrix(self, A):
-        """2^n x 2^n matrix of X -> A X."""
+        """2^n x 2^n matrix of X -> A X (TooLarge above MATRIX_MAX_N dimensions)."""
+        if self.n > MATRIX_MAX_N:
+            raise TooLarge(f"the reference needs a {self.size} x {self.size} matrix here; it builds "
+                           f"them only up to n = {MATRIX_MAX_N} (this algebra has n = {self.n})")
         A = self._coerce(A)
+        if not self.exact and self.n > 8:       # the tensor would be 2^(3n) floats: by columns
+            out = np.zeros((self.size, self.size))
+            for b in range(self.size):
+                unit = np.zeros(self.size)
+                unit[b] = 1.0
+                out[:, b] = self.geometric(A, unit)
+            return out
         T = self._tensor()
         if self.exact:
             out = self._zeros((self.size, self.size))
@@ -367,12 +454,19 @@ class Reference:
 
     def geometric(self, A, B):
         A, B = self._coerce(A), self._coerce(B)
-        return A @ self._right_action(B)
+        if self.exact:
+            return A @ self._right_action(B)
+        out, memo = self.zero(), {}
+        for a in np.flatnonzero(A):
+            out += A[a] * self._blade_times(int(a), B, memo)
+        return out
 
     def _graded(self, A, B, rule):
         """Sum over homogeneous parts A_r, B_s of <A_r B_s>_{rule(r, s)}."""
         A, B = self._coerce(A), self._coerce(B)
         out = self.zero()
+        if not self.exact:
+            return self._graded_float(A, B, rule)
         for s in range(self.n + 1):
             Bs = self.project(B, [s])
             if self._is_zero(Bs):
@@ -387,6 +481,21 @@ class Reference:
                 if self._is_zero(Ar):
                     continue
                 out[ig] = out[ig] + Ar @ Y[np.ix_(ir, ig)]
+        return out
+
+    def _graded_float(self, A, B, rule):
+        out = self.zero()
+        parts = [(r, self.project(A, [r])) for r in range(self.n + 1)]
+        parts = [(r, Ar) for r, Ar in parts if not self._is_zero(Ar)]
+        for s in range(self.n + 1):
+            Bs = self.project(B, [s])
+            if self._is_zero(Bs):
+                continue
+            for r, Ar in parts:
+                g = rule(r, s)
+                if g is not None and 0 <= g <= self.n:
+                    ig = self._by_grade[g]
+                    out[ig] += self.geometric(Ar, Bs)[ig]
         return out
 
     def outer(self, A, B):
@@ -446,15 +555,24 @@ class Reference:
     def _complement_signs(self):
         """sigma[a] with e_a ^ (sigma[a] e_{~a}) = I, computed with the metric-free W_i."""
         if self._comp_sign is None:
-            W, _ = self._vector_ops()
-            signs = []
-            for a in range(self.size):
-                x = self.zero()
-                x[self._full ^ a] = self._coef(1)
-                for i in reversed(_elements(a, self.n)):
-                    x = W[i] @ x
-                s = x[self._full]  # e_a ^ e_{~a} = s I with s = +-1
-                signs.append(1 if s > 0 else -1)
+            if self.exact:
+                W, _ = self._vector_ops()
+                signs = []
+                for a in range(self.size):
+                    x = self.zero()
+                    x[self._full ^ a] = self._coef(1)
+                    for i in reversed(_elements(a, self.n)):
+                        x = W[i] @ x
+                    s = x[self._full]  # e_a ^ e_{~a} = s I with s = +-1
+                    signs.append(1 if s > 0 else -1)
+            else:   # the same wedges on all basis blades at once: W_i e_X = sign e_{X + i}
+                every = np.arange(self.size)
+                x, s = self._full ^ every, np.ones(self.size)
+                for i in reversed(range(self.n)):       # the factors of a, last first
+                    has = (every >> i) & 1 == 1
+                    s[has] *= np.where(self._grades[x[has] & ((1 << i) - 1)] % 2 == 1, -1.0, 1.0)
+                    x[has] |= 1 << i
+                signs = [1 if v > 0 else -1 for v in s.tolist()]
             self._comp_sign = signs
         return self._comp_sign
 

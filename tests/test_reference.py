@@ -685,3 +685,61 @@ def test_apply_dispatch_and_errors():
         R.geometric(np.zeros(4), B)  # wrong length
     # left_matrix(A) X = A X
     assert_mv_equal(R, R.left_matrix(A) @ B, R.geometric(A, B))
+
+
+# ----------------------------------------------------------------------------- the two paths
+# float64 products go through the index-array action on the right factor, exact ones through the
+# stacked tensor: two constructions of the same Chevalley operators, checked against each other
+# here (the outside checks above run on both dtypes)
+TWO_PATH_OPS = ["geometric", "outer", "left_contraction", "right_contraction", "scalar",
+                "fat_dot", "hestenes_inner", "commutator", "sandwich", "complement",
+                "uncomplement", "regressive", "norm_squared"]
+
+
+@pytest.mark.parametrize("metric", ALL_METRICS)
+def test_float_action_equals_exact_tensor(metric):
+    exact, fast = Reference(metric, dtype=object), Reference(metric)
+    rng = np.random.default_rng(41)
+    for _ in range(3):
+        A, B = rand_exact(exact, rng), rand_exact(exact, rng)
+        Af, Bf = A.astype(float), B.astype(float)
+        for op in TWO_PATH_OPS:
+            args = (A, B) if exact._OPS[op][1] == 2 else (A,)
+            fargs = (Af, Bf) if len(args) == 2 else (Af,)
+            want = np.array([float(x) for x in exact.apply(op, *args)])
+            assert np.allclose(fast.apply(op, *fargs), want, atol=1e-9), (op, metric)
+    for factors in itertools.permutations(range(exact.n), 2):
+        assert np.allclose(fast.blade(factors), exact.blade(factors).astype(float))
+
+
+def test_sixteen_dimensions_without_the_tensor():
+    # a spec may have 16 basis vectors (spec.MAX_DIMENSION); the float reference must serve it
+    # without 2^48-entry tables.  Facts checked (common practice, no source): v v = v.v for a
+    # vector in a diagonal metric; orthogonal vectors anticommute; the product is associative;
+    # a vector times a bivector has grades 1 and 3 only.
+    metric = [1] * 10 + [-1] * 5 + [0]
+    R = Reference(metric)
+    rng = np.random.default_rng(16)
+    v = R.zero()
+    v[[1 << i for i in range(16)]] = rng.uniform(-1, 1, 16)
+    vv = R.geometric(v, v)
+    assert np.isclose(vv[0], sum(m * v[1 << i] ** 2 for i, m in enumerate(metric)))
+    assert np.allclose(vv[1:], 0)
+    e3, e14 = R.vector(3), R.vector(14)
+    assert np.allclose(R.geometric(e3, e14), -R.geometric(e14, e3))
+    b = R.outer(R.vector(2), v)
+    vb = R.geometric(v, b)
+    assert set(R._grades[np.flatnonzero(np.abs(vb) > 1e-12)].tolist()) <= {1, 3}
+    u = R.vector(5) + 0.5 * R.vector(11)
+    assert np.allclose(R.geometric(R.geometric(u, v), b), R.geometric(u, R.geometric(v, b)))
+    # the complement still satisfies e_a ^ comp(e_a) = I (its definition) at this size
+    I = R.pseudoscalar()
+    for a in (R.blade((0, 7)), R.blade((3, 9, 15))):
+        assert np.allclose(R.outer(a, R.complement(a)), I)
+
+
+def test_matrix_operations_say_when_the_algebra_is_too_large():
+    from generator.reference import MATRIX_MAX_N, TooLarge
+    R = Reference([1] * (MATRIX_MAX_N + 1))
+    with pytest.raises(TooLarge, match="matrix"):
+        R.inverse(R.scalar(2.0))

@@ -643,3 +643,49 @@ def test_failing_spec_leaves_previous_output_untouched(work):
     write(work / "good.toml", ARM.replace('name = "arm"', 'name = "good"'))
     assert run("build", "good.toml", spec.name, "--out", "fresh").exit_code == 2
     assert not (work / "fresh").exists()
+
+
+# --- verify at the largest dimensions a spec allows ---------------------------------------------
+
+def wide_spec(n: int, kernels: str) -> str:
+    basis = ", ".join(f'"e{i}"' for i in range(1, n + 1))
+    return f"""
+# test scenario: a {n}-dimensional field of a toy swarm simulator
+[algebra]
+name = "swarm{n}"
+basis = [{basis}]
+metric = [{", ".join(["1"] * (n - 1) + ["-1"])}]
+[types.vec]
+grades = [1]
+[types.rotor]
+grades = [0, 2]
+{kernels}
+[targets.python]
+"""
+
+
+def test_verify_serves_sixteen_dimensions(tmp_path):
+    # the reference used to build a 2^n x 2^n x 2^n tensor (n = 11: 64 GiB, a traceback); its
+    # float path now applies the products to vectors, so verify runs at spec.MAX_DIMENSION
+    spec = tmp_path / "swarm.toml"
+    spec.write_text(wide_spec(16, '[[kernels]]\nop = "geometric"\nargs = ["vec", "vec"]\n'
+                                  'name = "pair"\nresult = "rotor"\n'))
+    r = CliRunner().invoke(main, ["verify", str(spec), "--out", str(tmp_path / "out"),
+                                  "--samples", "8"])
+    assert r.exit_code == 0, r.output
+    assert "pair" in r.output and "MISMATCH" not in r.output
+
+
+def test_verify_says_which_kernels_the_reference_cannot_check(tmp_path):
+    # inverse needs the reference's 2^n x 2^n left-multiplication matrix, built up to n = 10:
+    # above that verify reports the kernel NOT CHECKED and exits 1, without a traceback
+    spec = tmp_path / "swarm.toml"
+    spec.write_text(wide_spec(11, '[[kernels]]\nop = "inverse"\nargs = ["vec"]\nname = "undo"\n'
+                                  '[[kernels]]\nop = "outer"\nargs = ["vec", "vec"]\n'
+                                  'name = "span"\n'))
+    r = CliRunner().invoke(main, ["verify", str(spec), "--out", str(tmp_path / "out"),
+                                  "--samples", "4"])
+    assert r.exit_code == 1, r.output
+    assert r.exception is None or isinstance(r.exception, SystemExit)
+    assert "NOT CHECKED" in r.output and "n = 10" in r.output and "span" in r.output
+    assert "1 kernel(s) could not be checked" in r.stderr
