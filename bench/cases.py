@@ -12,8 +12,8 @@ the same arrays by every row of `IMPLEMENTATIONS`:
 - `scipy`: `Rotation.apply(v)` of `Rotation.from_quat` of the rotors, made before timing.
 
 Inputs are uniform in [-1, 1], the first argument normalized to unit length (a unit rotor for
-scipy and numpy-quaternion); every output array is written once before timing, so page faults
-are not timed.
+scipy and numpy-quaternion).  Every array timed comes from `memory.array` (its own 2 MiB-aligned
+mapping, advised for huge pages, written once before timing, so page faults are not timed).
 """
 from __future__ import annotations
 
@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+import memory
 from measure import loop
 
 
@@ -54,6 +55,7 @@ class Context:
     numba: dict
     dense: dict
     notes: dict = field(default_factory=dict)     # case label -> remarks for the tables
+    huge: dict = field(default_factory=dict)      # case label -> share on huge pages, largest N
 
     def note(self, case: Case, text: str) -> None:
         self.notes.setdefault(case.label, [])
@@ -70,6 +72,11 @@ class Data:
     out: np.ndarray
     dense: tuple = ()
     repeated: np.ndarray | None = None      # `a` repeated N times, for C without `_fixed_n`
+    stream: tuple = ()                      # the streaming baseline's arrays
+
+    def arrays(self) -> list:
+        """Every array timed on: the kernel's (a, b, out) and the stream's."""
+        return [self.a, self.b, self.out] + list(self.stream)
 
 
 def sandwich(ctx: Context, case: Case) -> bool:
@@ -87,7 +94,8 @@ def make_data(ctx: Context, case: Case, n: int, seed: int = 1) -> Data:
     ka, kb, kr = widths(ctx, case)
     a = rng.uniform(-1.0, 1.0, (1 if case.one else n, ka))
     a /= np.linalg.norm(a, axis=1, keepdims=True)
-    return Data(a, rng.uniform(-1.0, 1.0, (n, kb)), np.full((n, kr), 0.0))
+    return Data(memory.like(a), memory.like(rng.uniform(-1.0, 1.0, (n, kb))),
+                memory.array((n, kr)))
 
 
 def dense_data(ctx: Context, case: Case, d: Data) -> tuple:
@@ -95,8 +103,8 @@ def dense_data(ctx: Context, case: Case, d: Data) -> tuple:
     if not d.dense:
         dense, (ta, tb) = ctx.dense[case.spec], ctx.built[case.spec].kernel(case.kernel)["args"]
         shape = (d.out.shape[0], dense.size)
-        d.dense = (dense.embed(ta, d.a), dense.embed(tb, d.b), np.full(shape, 0.0),
-                   np.full(shape, 0.0))
+        d.dense = (memory.like(dense.embed(ta, d.a)), memory.like(dense.embed(tb, d.b)),
+                   memory.array(shape), memory.array(shape))
     return d.dense
 
 
@@ -111,7 +119,8 @@ class Stream:
 
     def __init__(self, read: int, write: int):
         self.steps = [step for step in self._plan(read, write) if step[1] > 0]
-        self.arrays = [[np.full(size, 1.0) for _ in range(arity)] for _, size, arity in self.steps]
+        self.arrays = [[memory.array(size, 1.0) for _ in range(arity)]
+                       for _, size, arity in self.steps]
 
     @staticmethod
     def _plan(r: int, w: int):
@@ -142,7 +151,7 @@ def run_c(ctx: Context, case: Case, d: Data):
     if case.one:
         ctx.note(case, f"C: the header has no `{case.kernel}_fixed_n`; timed `_n` with the "
                        "element repeated N times (it reads those N copies too)")
-        d.repeated = np.ascontiguousarray(np.repeat(d.a, d.out.shape[0], axis=0))
+        d.repeated = memory.like(np.repeat(d.a, d.out.shape[0], axis=0))
         return lib.runner(case.kernel, d.repeated, d.b, d.out)
     return lib.runner(case.kernel, d.a, d.b, d.out)
 
@@ -154,6 +163,7 @@ def run_numba(ctx: Context, case: Case, d: Data):
 
 def run_stream(ctx: Context, case: Case, d: Data):
     stream = Stream(d.a.size + d.b.size, d.out.size)
+    d.stream = tuple(x for arrays in stream.arrays for x in arrays)
     return loop(stream)
 
 

@@ -131,6 +131,17 @@ def revision(root: Path) -> str:
     return head + (" with uncommitted changes in generator/ or templates/" if dirty else "")
 
 
+def thp_mode() -> str:
+    """The transparent huge page setting in force ("madvise", ...), or "unknown"."""
+    path = Path("/sys/kernel/mm/transparent_hugepage/enabled")
+    try:
+        text = path.read_text()
+    except OSError:
+        return "unknown"
+    chosen = [w.strip("[]") for w in text.split() if w.startswith("[")]
+    return chosen[0] if chosen else text.strip()
+
+
 def facts(compiler: str, root: Path) -> list[tuple[str, str]]:
     """(label, value) rows for RESULTS.md."""
     return [("command", " ".join([os.path.basename(sys.executable)] + sys.argv)),
@@ -140,4 +151,5 @@ def facts(compiler: str, root: Path) -> list[tuple[str, str]]:
             ("packages", versions()),
             ("C compiler", f"{compiler}, flags -O3 -march=native"),
             ("BLAS", blas()),
-            ("BLAS environment", blas_variables())]
+            ("BLAS environment", blas_variables()),
+            ("transparent huge pages", thp_mode())]

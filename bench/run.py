@@ -106,7 +106,8 @@ def markdown(s: Settings, found: dict, targets: list, seconds: float) -> str:
         "## Targets (issue 8, item 2)\n\n" + report.goals_table(targets) + "\n\n" + goals.READING,
         "## Kernel throughput (ns per element, float64)\n\n"
         + report.throughput_table(found["results"], sizes) + "\n\n"
-        + report.notes_list(ctx.notes, found["agreement"]) + "\n\n" + METHOD,
+        + report.notes_list(ctx.notes, found["agreement"]) + "\n\n" + METHOD
+        + huge_pages(ctx.huge, max(sizes)),
         "### Ratios (same run)\n\n" + report.ratio_table(found["results"], sizes),
         "## Single-element calls from Python (µs per call)\n\n"
         + report.singles_table(found["singles"]),
@@ -118,6 +119,15 @@ def markdown(s: Settings, found: dict, targets: list, seconds: float) -> str:
     return "\n\n".join(sections) + "\n"
 
 
+def huge_pages(shares: dict, n: int) -> str:
+    """A sentence on how much of the timed arrays the kernel backed with huge pages."""
+    if not shares:
+        return ""
+    low, high = min(shares.values()), max(shares.values())
+    return (f"  At N = {n:,}, huge pages backed {100 * low:.0f}-{100 * high:.0f} % of each case's "
+            f"arrays (/proc/self/smaps; transparent huge pages: {envinfo.thp_mode()}).")
+
+
 METHOD = (
     "C: `NAME_K_n` (`NAME_K_fixed_n` for one element against N when the header has it), "
     "compiled `-O3 -march=native`, looped in C so ctypes is paid once per repetition.  numba: "
@@ -127,7 +137,9 @@ METHOD = (
     "have one width).  numpy-quaternion: `np.multiply(qa, qb, out=qc)`.  scipy: `Rotation.apply` "
     "of a `Rotation` made before timing (it allocates its result).  einsum: dense multivectors "
     "and the full 2^n x 2^n x 2^n tensor from `generator.reference`, in chunks of 4,096 rows "
-    "(dense.py).  Everything runs on one thread: OpenBLAS (einsum) is set to one thread too.")
+    "(dense.py).  Everything runs on one thread: OpenBLAS (einsum) is set to one thread too.  "
+    "Every array timed has its own 2 MiB-aligned mapping advised for huge pages (memory.py), so "
+    "a kernel and its stream sit on the same kind of pages.")
 GENERATION = (
     "In process: `pipeline.build` and `pipeline.write` of all three targets and the manifest "
     "into a fresh directory, median [min–max]; CLI: one `bladesmith build SPEC --out DIR -q` "

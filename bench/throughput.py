@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 
 import loaders
+import memory
 from cases import CASES, IMPLEMENTATIONS, SPECS, Context, agreement, make_data
 from dense import Dense
 from measure import interleaved, measure, statement
@@ -56,6 +57,9 @@ def time_case(ctx: Context, case, n: int, reps: int, min_time: float, sizes) -> 
     runs = {name: make(ctx, case, d) for name, make in IMPLEMENTATIONS.items()}
     runs = {name: run for name, run in runs.items() if run is not None}
     stats = interleaved(runs, {name: repetitions(name, n, reps, sizes) for name in runs}, min_time)
+    share = memory.huge_share(d.arrays())
+    if share is not None and n == max(sizes):
+        ctx.huge[case.label] = share
     return {name: s.scaled(1e9 / n) for name, s in stats.items()}
 
 
