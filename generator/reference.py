@@ -68,6 +68,7 @@ except Exception:  # pragma: no cover - scipy is a dependency, but keep the orac
 __all__ = ["Reference", "TooLarge"]
 
 MATRIX_MAX_N = 10       # largest n for which a 2^n x 2^n matrix is built (inverse, exp)
+MEMO_BYTES = 1 << 28    # intermediates one float product may keep (256 MiB)
 
 
 class TooLarge(ValueError):
@@ -318,7 +319,9 @@ class Reference:
         return out
 
     def _blade_times(self, a, X, memo):
-        """e_a X (float path), by the recursion of the module docstring; memo: {a: e_a X}."""
+        """e_a X (float path), by the recursion of the module docstring; memo: {a: e_a X}, emptied
+        when it would pass MEMO_BYTES (a full multivector at n = 16 would otherwise keep 2^16
+        intermediates of 2^16 floats; values are only recomputed, never wrong)."""
         if a == 0:
             return X
         if a not in memo:
@@ -329,6 +332,8 @@ class Reference:
                 g = self.metric_exact[i][j]
                 if g != 0:
                     Y = Y - (-float(g) if k % 2 else float(g)) * self._blade_times(b ^ (1 << j), X, memo)
+            if len(memo) * 8 * self.size >= MEMO_BYTES:
+                memo.clear()
             memo[a] = Y
         return memo[a]
 
