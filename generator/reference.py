@@ -49,9 +49,9 @@ right-hand factor instead of to matrices,
 with each L_i applied to a dense vector through index arrays (`_actions`: the entries of W_i
 and C_i, never a 2^n x 2^n matrix), and A X = sum_A A[A] e_A X over the non-zero entries of A.
 A product then costs about (non-zero entries of A) x grade x 2^n operations and 2^n floats per
-intermediate, so the reference serves every dimension a spec allows (16), while the tensor,
-2^(3n) entries, is built only for `left_matrix` (inverse, exp) and only up to `MATRIX_MAX_N`.
-The exact tables keep the tensor; tests check the two paths against each other.
+intermediate, so the reference serves every dimension a spec allows (16).  `left_matrix`
+(inverse, exp) is built by columns from that product, up to `MATRIX_MAX_N`.  Only the exact
+tables build the tensor; tests check the two paths against each other.
 """
 
 import itertools
@@ -290,31 +290,35 @@ class Reference:
         value (-1)^(position of j) G[i, j]).  Within a triple the targets are distinct."""
         if self._act is None:
             n, every = self.n, np.arange(self.size)
-            odd = self._grades % 2
             wedge, contraction = [], []
             for i in range(n):
-                bit, below = 1 << i, (1 << i) - 1
-                src = every[(every & bit) == 0]
-                wedge.append((src, src | bit, np.where(odd[src & below] == 1, -1.0, 1.0)))
+                src = every[(every >> i) & 1 == 0]
+                wedge.append((src, src | (1 << i), self._below_signs(i, src)))
                 terms = []
                 for j in range(n):
                     g = float(self.metric_exact[i][j])
                     if g != 0:
-                        jbit = 1 << j
-                        src_j = every[(every & jbit) != 0]
-                        sign = np.where(odd[src_j & (jbit - 1)] == 1, -1.0, 1.0)
-                        terms.append((src_j, src_j & ~jbit, g * sign))
+                        src_j = every[(every >> j) & 1 == 1]
+                        terms.append((src_j, src_j & ~(1 << j), g * self._below_signs(j, src_j)))
                 contraction.append(terms)
             self._act = (wedge, contraction)
         return self._act
 
+    def _below_signs(self, i, bitmaps):
+        """(-1)^(number of elements of each bitmap below i), as floats."""
+        return np.where(self._grades[bitmaps & ((1 << i) - 1)] % 2 == 1, -1.0, 1.0)
+
+    def _wedge(self, i, X):
+        """W_i X for a dense float vector X."""
+        src, dst, sign = self._actions()[0][i]
+        out = np.zeros(self.size)
+        out[dst] = sign * X[src]
+        return out
+
     def _apply_L(self, i, X):
         """L_i X = W_i X + C_i X for a dense float vector X."""
-        wedge, contraction = self._actions()
-        out = np.zeros(self.size)
-        src, dst, sign = wedge[i]
-        out[dst] += sign * X[src]
-        for src, dst, value in contraction[i]:
+        out = self._wedge(i, X)
+        for src, dst, value in self._actions()[1][i]:
             out[dst] += value * X[src]
         return out
 
@@ -398,12 +402,8 @@ class Reference:
             for i in reversed(factors):  # f_a ^ (f_b ^ (... ^ 1))
                 out = W[i] @ out
             return out
-        wedge, _ = self._actions()
         for i in reversed(factors):
-            src, dst, sign = wedge[i]
-            nxt = np.zeros(self.size)
-            nxt[dst] = sign * out[src]
-            out = nxt
+            out = self._wedge(i, out)
         return out
 
     def grade_of(self, bitmap):
@@ -430,32 +430,23 @@ class Reference:
             raise TooLarge(f"the reference needs a {self.size} x {self.size} matrix here; it builds "
                            f"them only up to n = {MATRIX_MAX_N} (this algebra has n = {self.n})")
         A = self._coerce(A)
-        if not self.exact and self.n > 8:       # the tensor would be 2^(3n) floats: by columns
-            out = np.zeros((self.size, self.size))
-            for b in range(self.size):
-                unit = np.zeros(self.size)
-                unit[b] = 1.0
-                out[:, b] = self.geometric(A, unit)
-            return out
+        if not self.exact:      # column b is A e_b, by the float product
+            return np.stack([self.geometric(A, unit) for unit in np.eye(self.size)], axis=1)
         T = self._tensor()
-        if self.exact:
-            out = self._zeros((self.size, self.size))
-            for a in range(self.size):
-                if A[a] != 0:
-                    out = out + A[a] * T[a]
-            return out
-        return np.tensordot(A, T, axes=(0, 0))
+        out = self._zeros((self.size, self.size))
+        for a in range(self.size):
+            if A[a] != 0:
+                out = out + A[a] * T[a]
+        return out
 
     def _right_action(self, B):
-        """Y[a, c] = coefficient of e_c in e_a B."""
+        """Y[a, c] = coefficient of e_c in e_a B (exact tables)."""
         T = self._tensor()
-        if self.exact:
-            Y = self._zeros((self.size, self.size))
-            for b in range(self.size):
-                if B[b] != 0:
-                    Y = Y + B[b] * T[:, :, b]
-            return Y
-        return np.tensordot(T, B, axes=(2, 0))
+        Y = self._zeros((self.size, self.size))
+        for b in range(self.size):
+            if B[b] != 0:
+                Y = Y + B[b] * T[:, :, b]
+        return Y
 
     def geometric(self, A, B):
         A, B = self._coerce(A), self._coerce(B)
@@ -469,9 +460,9 @@ class Reference:
     def _graded(self, A, B, rule):
         """Sum over homogeneous parts A_r, B_s of <A_r B_s>_{rule(r, s)}."""
         A, B = self._coerce(A), self._coerce(B)
-        out = self.zero()
         if not self.exact:
             return self._graded_float(A, B, rule)
+        out = self.zero()
         for s in range(self.n + 1):
             Bs = self.project(B, [s])
             if self._is_zero(Bs):
@@ -489,6 +480,7 @@ class Reference:
         return out
 
     def _graded_float(self, A, B, rule):
+        """`_graded` by the float product of each pair of non-zero homogeneous parts."""
         out = self.zero()
         parts = [(r, self.project(A, [r])) for r in range(self.n + 1)]
         parts = [(r, Ar) for r, Ar in parts if not self._is_zero(Ar)]
@@ -560,25 +552,15 @@ class Reference:
     def _complement_signs(self):
         """sigma[a] with e_a ^ (sigma[a] e_{~a}) = I, computed with the metric-free W_i."""
         if self._comp_sign is None:
-            if self.exact:
-                W, _ = self._vector_ops()
-                signs = []
-                for a in range(self.size):
-                    x = self.zero()
-                    x[self._full ^ a] = self._coef(1)
-                    for i in reversed(_elements(a, self.n)):
-                        x = W[i] @ x
-                    s = x[self._full]  # e_a ^ e_{~a} = s I with s = +-1
-                    signs.append(1 if s > 0 else -1)
-            else:   # the same wedges on all basis blades at once: W_i e_X = sign e_{X + i}
-                every = np.arange(self.size)
-                x, s = self._full ^ every, np.ones(self.size)
-                for i in reversed(range(self.n)):       # the factors of a, last first
-                    has = (every >> i) & 1 == 1
-                    s[has] *= np.where(self._grades[x[has] & ((1 << i) - 1)] % 2 == 1, -1.0, 1.0)
-                    x[has] |= 1 << i
-                signs = [1 if v > 0 else -1 for v in s.tolist()]
-            self._comp_sign = signs
+            # e_a ^ e_{~a} = W_{a_1} ... W_{a_k} e_{~a}, on all basis blades at once: each W_i
+            # maps e_X to (-1)^(elements of X below i) e_{X + i}; the signs are metric-free
+            every = np.arange(self.size)
+            x, s = self._full ^ every, np.ones(self.size)
+            for i in reversed(range(self.n)):       # the factors of a, last first
+                has = (every >> i) & 1 == 1
+                s[has] *= self._below_signs(i, x[has])
+                x[has] |= 1 << i
+            self._comp_sign = [1 if v > 0 else -1 for v in s.tolist()]
         return self._comp_sign
 
     def complement(self, A):
